@@ -1,0 +1,27 @@
+"""forebrief: weekly briefings from probabilistic epidemic forecasts.
+
+Read and validate submissions and observations, score every model (Cooke's Classical Model,
+weighted interval score, coverage, point error, relative skill against a persistence
+baseline), pool the models into ensembles with only what was known on the issue date, and
+write a plain-language briefing with its record.
+"""
+
+from __future__ import annotations
+
+from importlib.metadata import PackageNotFoundError, version
+
+from forebrief.errors import ArchiveError, ConfigError, DeliveryError, ForebriefError, InputError
+
+try:
+    __version__ = version("forebrief")
+except PackageNotFoundError:  # running from a source tree that was never installed
+    __version__ = "0.0.0+unknown"
+
+__all__ = [
+    "ArchiveError",
+    "ConfigError",
+    "DeliveryError",
+    "ForebriefError",
+    "InputError",
+    "__version__",
+]

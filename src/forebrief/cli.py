@@ -1,0 +1,391 @@
+"""The command line: a thin layer that parses arguments, calls the library and writes files.
+
+Exit codes: 0 success; 1 an error in the inputs or the run (the message says which file, row
+and value, and the fix); 2 a usage error (a bad flag or option value); 130 on Ctrl-C.
+Only :class:`forebrief.errors.ForebriefError` is caught: anything else is a bug.
+"""
+
+from __future__ import annotations
+
+import argparse
+import json
+import sys
+from collections.abc import Callable, Iterator, Sequence
+from contextlib import contextmanager
+from pathlib import Path
+from typing import Any
+
+import pandas as pd
+
+from forebrief import __version__
+from forebrief.errors import ConfigError, ForebriefError
+
+__all__ = ["main"]
+
+
+# --------------------------------------------------------------------------------------------
+# argument types
+
+
+def _date(text: str) -> pd.Timestamp:
+    try:
+        return pd.Timestamp(pd.to_datetime(text, format="%Y-%m-%d"))
+    except (ValueError, TypeError):
+        raise argparse.ArgumentTypeError(
+            f"{text!r} is not a date; write it as YYYY-MM-DD, for example 2026-11-30"
+        ) from None
+
+
+def _positive_int(text: str) -> int:
+    try:
+        value = int(text)
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"{text!r} is not a whole number") from None
+    if value < 1:
+        raise argparse.ArgumentTypeError(f"must be at least 1; got {value}")
+    return value
+
+
+def _fraction(text: str) -> float:
+    try:
+        value = float(text)
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"{text!r} is not a number") from None
+    if not 0.0 <= value <= 1.0:
+        raise argparse.ArgumentTypeError(f"must lie between 0 and 1; got {value:g}")
+    return value
+
+
+def _level(text: str) -> float:
+    value = _fraction(text)
+    if value in (0.0, 1.0):
+        raise argparse.ArgumentTypeError(f"a level must lie strictly between 0 and 1; got {text}")
+    return value
+
+
+def _nonneg_float(text: str) -> float:
+    try:
+        value = float(text)
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"{text!r} is not a number") from None
+    if value < 0:
+        raise argparse.ArgumentTypeError(f"must be >= 0; got {value:g}")
+    return value
+
+
+def _power(text: str) -> float:
+    value = _fraction(text)
+    if value == 0.0:
+        raise argparse.ArgumentTypeError("the calibration power must lie in (0, 1]; got 0")
+    return value
+
+
+# --------------------------------------------------------------------------------------------
+# output helpers
+
+
+class _Console:
+    """Data to stdout, messages and progress to stderr; quiet without a terminal."""
+
+    def __init__(self, *, quiet: bool = False) -> None:
+        from rich.console import Console
+
+        self.out = Console(highlight=False, soft_wrap=True)
+        self.err = Console(stderr=True, highlight=False, soft_wrap=True)
+        self.quiet = quiet
+
+    def say(self, text: str) -> None:
+        if not self.quiet:
+            self.err.print(text, markup=False)
+
+    def problem_lines(self, lines: Sequence[str]) -> None:
+        for line in lines:
+            self.err.print(line, markup=False)
+
+    @contextmanager
+    def stages(self, total: int) -> Iterator[Callable[[str], None]]:
+        """A progress display of named stages (shown on a terminal only)."""
+        from rich.progress import BarColumn, Progress, TextColumn, TimeElapsedColumn
+
+        progress = Progress(
+            TextColumn("{task.description:<28}"),
+            BarColumn(),
+            TextColumn("{task.completed}/{task.total}"),
+            TimeElapsedColumn(),
+            console=self.err,
+            transient=True,
+            disable=self.quiet or not self.err.is_terminal,
+        )
+        with progress:
+            task = progress.add_task("starting", total=total)
+            state = {"started": False}
+
+            def advance(name: str) -> None:
+                if state["started"]:
+                    progress.advance(task)
+                state["started"] = True
+                progress.update(task, description=name)
+
+            yield advance
+            progress.update(task, completed=total)
+
+
+def _add_common(p: argparse.ArgumentParser) -> None:
+    p.add_argument("-q", "--quiet", action="store_true", help="print only errors")
+
+
+def _add_input_options(p: argparse.ArgumentParser) -> None:
+    p.add_argument(
+        "--columns",
+        metavar="OURS=THEIRS,...",
+        help="read files whose columns are named differently, e.g. value=quantile_value,level=prob",
+    )
+    p.add_argument(
+        "--signed",
+        metavar="QUANTITY",
+        nargs="+",
+        default=(),
+        help="quantities that may be negative (all are counts, floored at 0, unless named here)",
+    )
+
+
+def _signed(args: argparse.Namespace) -> tuple[str, ...]:
+    return tuple(getattr(args, "signed", ()) or ())
+
+
+def _columns(args: argparse.Namespace) -> dict[str, str]:
+    from forebrief.io.tables import parse_column_map
+
+    return parse_column_map(getattr(args, "columns", None))
+
+
+def _add_score_options(p: argparse.ArgumentParser, *, alpha_auto: bool = False) -> None:
+    from forebrief.schema import CM_LEVELS
+
+    g = p.add_argument_group("scoring")
+    g.add_argument("--window", type=_positive_int, default=12, metavar="W",
+                   help="weeks of past targets to score (default 12)")
+    if alpha_auto:
+        g.add_argument("--alpha", default="auto", metavar="A|auto",
+                       help="calibration cutoff for weights, or 'auto' to optimise it (default)")
+    else:
+        g.add_argument("--alpha", type=_fraction, default=0.05, metavar="A",
+                       help="calibration cutoff for performance weights (default 0.05)")
+    g.add_argument("--baseline", metavar="NAME", default=None,
+                   help="model that relative WIS is measured against")
+    g.add_argument("--levels", type=_level, nargs="+", default=list(CM_LEVELS), metavar="L",
+                   help="Classical Model levels (default 0.05 0.25 0.5 0.75 0.95)")
+    g.add_argument("--overshoot", type=_nonneg_float, default=0.10, metavar="K",
+                   help="intrinsic-range overshoot (default 0.10)")
+    g.add_argument("--background", choices=("uniform", "log"), default="uniform",
+                   help="information background measure (default uniform)")
+    g.add_argument("--scale", choices=("natural", "log"), default="natural",
+                   help="score WIS on the natural scale or on ln(x + 1) (default natural)")
+    g.add_argument("--power", type=_power, default=1.0, metavar="P",
+                   help="calibration power in (0, 1] (default 1)")
+
+
+def _settings(args: argparse.Namespace, **overrides: Any) -> Any:
+    from forebrief.scoring.engine import ScoreSettings
+
+    values = dict(
+        window=args.window,
+        alpha=args.alpha,
+        baseline=args.baseline,
+        levels=tuple(sorted(args.levels)),
+        overshoot=args.overshoot,
+        background=args.background,
+        scale=args.scale,
+        power=args.power,
+    )
+    values.update(overrides)
+    return ScoreSettings(**values)
+
+
+# --------------------------------------------------------------------------------------------
+# commands
+
+
+def _cmd_check(args: argparse.Namespace, con: _Console) -> int:
+    from forebrief.validate import cross_check
+    from forebrief.workflow import load_forecasts, load_observations
+
+    forecasts = load_forecasts(args.forecasts, columns=_columns(args),
+                               signed=_signed(args))
+    problems = list(forecasts.problems)
+    n_obs = 0
+    if args.observations:
+        obs = load_observations(args.observations, columns=_columns(args),
+                                signed=_signed(args), as_of=args.as_of)
+        problems += [*obs.problems, *cross_check(forecasts, obs)]
+        n_obs = len(obs.table)
+    errors = [p for p in problems if p.severity == "error"]
+    warnings = [p for p in problems if p.severity == "warning"]
+    if args.json:
+        payload = {
+            "errors": len(errors),
+            "warnings": len(warnings),
+            "problems": [
+                {"severity": p.severity, "check": p.check, "file": p.file, "rows": list(p.rows),
+                 "model": p.model, "column": p.column, "values": list(p.values),
+                 "message": p.message, "fix": p.fix, "line": p.line()}
+                for p in problems
+            ],
+        }
+        con.out.print_json(json.dumps(payload))
+    else:
+        for p in problems:
+            con.out.print(p.line(), markup=False)
+    n_fc = len(forecasts.excluded)
+    summary = (
+        f"{len(errors)} error(s), {len(warnings)} warning(s); {len(forecasts.table)} forecast rows "
+        f"usable, {n_fc} forecast(s) quarantined"
+        + (f"; {n_obs} observation rows usable" if args.observations else "")
+    )
+    con.say(summary)
+    return 1 if errors else 0
+
+
+def _cmd_score(args: argparse.Namespace, con: _Console) -> int:
+    from forebrief.io.outputs import write_tables
+    from forebrief.scoring.engine import score_forecasts
+    from forebrief.workflow import load_inputs
+
+    settings = _settings(args)
+    with con.stages(4) as stage:
+        stage("reading and checking inputs")
+        inputs = load_inputs(args.forecasts, args.observations, columns=_columns(args),
+                             signed=_signed(args), as_of=args.as_of)
+        stage("scoring")
+        result = score_forecasts(inputs.forecasts.table, inputs.observations.table,
+                                 as_of=args.as_of, settings=settings)
+        stage("writing tables")
+        paths = write_tables(
+            {
+                "scores_by_model.csv": result.by_model,
+                "scores_by_model_region.csv": result.by_model_region,
+                "scores_by_item.csv": result.by_item,
+                "excluded.csv": inputs.excluded,
+            },
+            args.out,
+        )
+        stage("done")
+    _report_problems(inputs.problems, con)
+    _print_score_summary(result, con)
+    for note in result.notes:
+        con.say(f"note: {note}")
+    con.say(f"wrote {len(paths)} tables to {args.out}")
+    return 0 if not result.by_model.empty else 1
+
+
+def _report_problems(problems: Sequence[Any], con: _Console) -> None:
+    errors = [p for p in problems if p.severity == "error"]
+    warnings = [p for p in problems if p.severity == "warning"]
+    if errors:
+        con.problem_lines([p.line() for p in errors])
+    if warnings and not con.quiet:
+        con.problem_lines([p.line() for p in warnings])
+    if errors or warnings:
+        con.say(f"{len(errors)} input error(s) (their forecasts are quarantined and listed in "
+                f"excluded.csv), {len(warnings)} warning(s)")
+
+
+def _print_score_summary(result: Any, con: _Console) -> None:
+    if con.quiet or result.by_model.empty:
+        return
+    from rich.table import Table
+
+    table = Table(title=f"Scores as of {result.as_of:%Y-%m-%d} "
+                  f"(window {result.settings.window} weeks)", title_justify="left")
+    for col in ("quantity", "ahead", "models", "items", "pass cutoff", "highest weights",
+                "best rel. WIS"):
+        table.add_column(col, justify="right" if col in ("ahead", "models", "items") else "left")
+    for (q, h), part in result.by_model.groupby(["quantity", "horizon"], sort=True):
+        top = part.sort_values("weight", ascending=False).head(3)
+        weights = ", ".join(f"{m} {w:.2f}" for m, w in zip(top["model"], top["weight"],
+                                                          strict=True))
+        rel = part.dropna(subset=["relative_wis"]).sort_values("relative_wis")
+        best = f"{rel.iloc[0]['model']} {rel.iloc[0]['relative_wis']:.2f}" if len(rel) else "-"
+        table.add_row(str(q), f"{h} wk", str(len(part)), str(int(part["n_items"].max())),
+                      f"{int(part['passes_cutoff'].sum())} of {len(part)}", weights, best)
+    con.out.print(table)
+
+
+# --------------------------------------------------------------------------------------------
+# parser
+
+
+def build_parser() -> argparse.ArgumentParser:
+    parser = argparse.ArgumentParser(
+        prog="forebrief",
+        description="Weekly briefings from probabilistic epidemic forecasts: check inputs, "
+        "score models, pool them, and write the briefing.",
+    )
+    parser.add_argument("--version", action="version", version=f"forebrief {__version__}")
+    sub = parser.add_subparsers(dest="command", metavar="COMMAND")
+    sub.required = True
+
+    p = sub.add_parser("check", help="validate forecast (and observation) files",
+                       description="Report every problem in the input files, one line each. "
+                       "Exit 0 when there are no errors (warnings allowed), 1 when there are.")
+    p.add_argument("forecasts", nargs="+", metavar="FORECASTS",
+                   help="forecast files, folders of submission files, or glob patterns")
+    p.add_argument("--observations", nargs="+", metavar="OBS", help="observation file(s)")
+    p.add_argument("--as-of", type=_date, default=None, metavar="D",
+                   help="warn about observations dated after D (YYYY-MM-DD)")
+    p.add_argument("--json", action="store_true", help="print the problems as JSON")
+    _add_input_options(p)
+    _add_common(p)
+    p.set_defaults(func=_cmd_check)
+
+    p = sub.add_parser("score", help="score every model's record as of a date",
+                       description="Score every model on the targets of the last W weeks "
+                       "observed as of D: Classical Model calibration, information, combined "
+                       "score and weights; WIS, coverage, point error and relative WIS.")
+    p.add_argument("--forecasts", required=True, nargs="+", metavar="F",
+                   help="forecast files, folders or glob patterns")
+    p.add_argument("--observations", required=True, nargs="+", metavar="O",
+                   help="observation file(s)")
+    p.add_argument("--as-of", type=_date, required=True, metavar="D",
+                   help="score with what was observed on D (YYYY-MM-DD)")
+    p.add_argument("--out", type=Path, required=True, metavar="DIR", help="output folder")
+    _add_score_options(p)
+    _add_input_options(p)
+    _add_common(p)
+    p.set_defaults(func=_cmd_score)
+
+    _register_later_commands(sub)
+    return parser
+
+
+def _register_later_commands(sub: Any) -> None:
+    """Commands defined in other modules register themselves here."""
+    try:
+        from forebrief import cli_ensemble
+    except ImportError:  # pragma: no cover - during development only
+        return
+    cli_ensemble.register(sub, add_common=_add_common, add_input=_add_input_options,
+                          add_score=_add_score_options, date=_date, positive_int=_positive_int)
+
+
+def main(argv: Sequence[str] | None = None) -> int:
+    """Entry point of the ``forebrief`` console script."""
+    parser = build_parser()
+    args = parser.parse_args(argv)
+    con = _Console(quiet=getattr(args, "quiet", False))
+    try:
+        code = int(args.func(args, con))
+    except ConfigError as exc:
+        con.err.print(f"forebrief {args.command}: error: {exc}", markup=False)
+        return exc.exit_code
+    except ForebriefError as exc:
+        con.err.print(f"forebrief {args.command}: error: {exc}", markup=False)
+        return exc.exit_code
+    except KeyboardInterrupt:
+        con.err.print("interrupted", markup=False)
+        return 130
+    return code
+
+
+if __name__ == "__main__":  # pragma: no cover
+    sys.exit(main())

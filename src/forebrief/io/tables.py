@@ -1,0 +1,156 @@
+"""Read forecast and observation files (CSV or Parquet, chosen by extension) and write tables.
+
+Reading does no checking beyond "can this file be read at all": every row-level check lives in
+:mod:`forebrief.validate`, so that one bad row never costs the good ones. Text columns are read
+as text so that a bad entry can be quoted back to the user exactly as it was written.
+"""
+
+from __future__ import annotations
+
+import glob
+import os
+from collections.abc import Iterable, Mapping, Sequence
+from dataclasses import dataclass, field
+from pathlib import Path
+
+import pandas as pd
+
+from forebrief.errors import ConfigError, InputError
+
+__all__ = ["RawFile", "parse_column_map", "read_raw_table", "resolve_inputs", "write_csv"]
+
+_TABLE_SUFFIXES = (".csv", ".csv.gz", ".parquet", ".pq")
+#: Columns always read as text, so that an unparseable date is shown as written.
+_TEXT_COLUMNS = ("model", "region", "quantity", "issued", "week_ending", "reported")
+
+
+@dataclass(frozen=True)
+class RawFile:
+    """One input file as read: columns renamed to forebrief's names, nothing else changed.
+
+    ``first_row`` is the row number of the first data row as a reader sees the file: 2 for CSV
+    (the header is row 1, as a spreadsheet shows it), 1 for Parquet.
+    """
+
+    label: str
+    frame: pd.DataFrame
+    first_row: int
+    renamed: Mapping[str, str] = field(default_factory=dict)
+
+
+def parse_column_map(text: str | None) -> dict[str, str]:
+    """Parse ``ours=theirs,ours2=theirs2`` into ``{theirs: ours}`` (the renaming to apply)."""
+    if not text:
+        return {}
+    mapping: dict[str, str] = {}
+    for part in text.split(","):
+        part = part.strip()
+        if not part:
+            continue
+        ours, sep, theirs = part.partition("=")
+        if not sep or not ours.strip() or not theirs.strip():
+            raise ConfigError(
+                f"--columns entry {part!r} is not of the form ours=theirs; "
+                "fix: write for example --columns value=quantile_value,level=probability"
+            )
+        mapping[theirs.strip()] = ours.strip()
+    return mapping
+
+
+def resolve_inputs(spec: str | os.PathLike[str] | Sequence[str | os.PathLike[str]]) -> list[Path]:
+    """Expand a file, a folder (all tables below it) or a glob pattern into a sorted file list."""
+    specs: Iterable[str | os.PathLike[str]]
+    specs = [spec] if isinstance(spec, str | os.PathLike) else spec
+    found: list[Path] = []
+    for one in specs:
+        text = os.fspath(one)
+        path = Path(text)
+        if any(ch in text for ch in "*?["):
+            matches = sorted(Path(p) for p in glob.glob(text, recursive=True))
+            tables = [p for p in matches if p.is_file() and _is_table(p)]
+            if not tables:
+                raise InputError(
+                    f"{text}: no CSV or Parquet files match this pattern; "
+                    "fix: check the folder and the pattern (for example submissions/**/*.csv)"
+                )
+            found.extend(tables)
+        elif path.is_dir():
+            tables = sorted(p for p in path.rglob("*") if p.is_file() and _is_table(p))
+            if not tables:
+                raise InputError(
+                    f"{text}: this folder holds no .csv or .parquet files; "
+                    "fix: point to the folder that holds the submission files"
+                )
+            found.extend(tables)
+        elif path.is_file():
+            found.append(path)
+        else:
+            raise InputError(f"{text}: no such file or folder; fix: check the path")
+    return found
+
+
+def _is_table(path: Path) -> bool:
+    name = path.name.lower()
+    return name.endswith(_TABLE_SUFFIXES) and not name.startswith((".", "~"))
+
+
+def read_raw_table(path: Path, *, columns: Mapping[str, str] | None = None) -> RawFile:
+    """Read one CSV or Parquet file by its extension; rename columns with ``{theirs: ours}``.
+
+    Raises InputError only when the file cannot be read at all.
+    """
+    name = path.name.lower()
+    label = str(path)
+    try:
+        if name.endswith((".parquet", ".pq")):
+            frame = pd.read_parquet(path)
+            first_row = 1
+        elif name.endswith((".csv", ".csv.gz")):
+            header = pd.read_csv(path, nrows=0)
+            names = [columns.get(c, c) if columns else c for c in header.columns]
+            text_cols = {
+                orig: str
+                for orig, ours in zip(header.columns, names, strict=True)
+                if ours in _TEXT_COLUMNS
+            }
+            frame = pd.read_csv(
+                path,
+                dtype=text_cols,
+                keep_default_na=False,
+                na_values=[""],
+                skipinitialspace=True,
+            )
+            first_row = 2
+        else:
+            raise InputError(
+                f"{label}: unknown file type; fix: use a .csv or .parquet file (chosen by extension)"
+            )
+    except FileNotFoundError:
+        raise InputError(f"{label}: no such file; fix: check the path") from None
+    except InputError:
+        raise
+    except pd.errors.EmptyDataError:
+        raise InputError(f"{label}: the file is empty; fix: export the table with its header row") from None
+    except (pd.errors.ParserError, UnicodeDecodeError, ValueError, OSError) as exc:
+        first = str(exc).strip().splitlines()[0] if str(exc).strip() else type(exc).__name__
+        raise InputError(
+            f"{label}: cannot be read as a table ({first}); "
+            "fix: save it as comma-separated UTF-8 text with one header row, or as Parquet"
+        ) from None
+    renamed: dict[str, str] = {}
+    if columns:
+        renamed = {k: v for k, v in columns.items() if k in frame.columns}
+        frame = frame.rename(columns=renamed)
+    frame.columns = [str(c).strip() for c in frame.columns]
+    return RawFile(label=label, frame=frame, first_row=first_row, renamed=renamed)
+
+
+def write_csv(frame: pd.DataFrame, path: Path, *, float_format: str = "%.10g") -> Path:
+    """Write a table as UTF-8 CSV with '\\n' line endings and ISO dates (deterministic bytes)."""
+    out = frame.copy()
+    for col in out.columns:
+        if pd.api.types.is_datetime64_any_dtype(out[col]):
+            out[col] = out[col].dt.strftime("%Y-%m-%d")
+    path.parent.mkdir(parents=True, exist_ok=True)
+    out.to_csv(path, index=False, lineterminator="\n", float_format=float_format)
+    return path
