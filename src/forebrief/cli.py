@@ -159,7 +159,8 @@ def _columns(args: argparse.Namespace) -> dict[str, str]:
     return parse_column_map(getattr(args, "columns", None))
 
 
-def _add_score_options(p: argparse.ArgumentParser, *, alpha_auto: bool = False) -> None:
+def _add_score_options(p: argparse.ArgumentParser, *, alpha_auto: bool = False,
+                       scale: bool = True) -> None:
     from forebrief.schema import CM_LEVELS
 
     g = p.add_argument_group("scoring")
@@ -179,8 +180,9 @@ def _add_score_options(p: argparse.ArgumentParser, *, alpha_auto: bool = False) 
                    help="intrinsic-range overshoot (default 0.10)")
     g.add_argument("--background", choices=("uniform", "log"), default="uniform",
                    help="information background measure (default uniform)")
-    g.add_argument("--scale", choices=("natural", "log"), default="natural",
-                   help="score WIS on the natural scale or on ln(x + 1) (default natural)")
+    if scale:
+        g.add_argument("--scale", choices=("natural", "log"), default="natural",
+                       help="score WIS on the natural scale or on ln(x + 1) (default natural)")
     g.add_argument("--power", type=_power, default=1.0, metavar="P",
                    help="calibration power in (0, 1] (default 1)")
 
@@ -311,6 +313,199 @@ def _print_score_summary(result: Any, con: _Console) -> None:
     con.out.print(table)
 
 
+def _ensemble_settings(args: argparse.Namespace) -> Any:
+    from forebrief.ensemble import EnsembleSettings
+
+    alpha: Any = args.alpha
+    if alpha != "auto":
+        try:
+            alpha = float(alpha)
+        except ValueError:
+            raise ConfigError(f"--alpha must be 'auto' or a number in [0, 1]; got {alpha!r}") \
+                from None
+        if not 0.0 <= alpha <= 1.0:
+            raise ConfigError(f"--alpha must be 'auto' or a number in [0, 1]; got {args.alpha}")
+    return EnsembleSettings(
+        window=args.window,
+        alpha=alpha,
+        min_items=args.min_items,
+        baseline=args.baseline,
+        include_baseline=args.include_baseline,
+        levels=tuple(sorted(args.levels)),
+        overshoot=args.overshoot,
+        background=args.background,
+        power=args.power,
+        signed=_signed(args),
+    )
+
+
+def _cmd_baseline(args: argparse.Namespace, con: _Console) -> int:
+    from forebrief.ensemble import known_on
+    from forebrief.io.outputs import write_table
+    from forebrief.baseline import persistence_forecast
+    from forebrief.workflow import load_observations
+
+    obs = load_observations(args.observations, columns=_columns(args), signed=_signed(args),
+                            as_of=args.issued)
+    _report_problems(obs.problems, con)
+    known = known_on(obs.table, args.issued)
+    if known.empty:
+        raise ConfigError(f"no observation is known before {args.issued:%Y-%m-%d}; "
+                          "fix: choose a later --issued date")
+    floors = sorted(set(known["quantity"]) - set(_signed(args)))
+    table = persistence_forecast(known[["region", "quantity", "week_ending", "value"]],
+                                 issued=args.issued, horizons=tuple(args.horizons),
+                                 changes_window=args.changes_window, name=args.name,
+                                 nonnegative=floors)
+    path = write_table(table, args.out)
+    n_series = table.groupby(["region", "quantity"]).ngroups
+    con.say(f"wrote {len(table)} rows ({n_series} series x {len(args.horizons)} horizons) "
+            f"of {args.name!r} to {path}")
+    return 0
+
+
+def _cmd_ensemble(args: argparse.Namespace, con: _Console) -> int:
+    from forebrief.ensemble import build_ensemble
+    from forebrief.io.outputs import write_json, write_tables
+    from forebrief.workflow import load_inputs
+
+    settings = _ensemble_settings(args)
+    with con.stages(3) as stage:
+        stage("reading and checking inputs")
+        inputs = load_inputs(args.forecasts, args.observations, columns=_columns(args),
+                             signed=_signed(args), as_of=args.issued)
+        stage("weights and pools")
+        result = build_ensemble(inputs.forecasts.table, inputs.observations.table,
+                                issued=args.issued, settings=settings)
+        stage("writing")
+        write_tables({"ensemble.csv": result.ensemble, "weights.csv": result.weights,
+                      "robustness.csv": result.robustness, "excluded.csv": inputs.excluded},
+                     args.out)
+        write_json(result.summary, args.out / "ensemble_summary.json")
+    _report_problems(inputs.problems, con)
+    for note in result.notes:
+        con.say(f"note: {note}")
+    _print_weights(result, con)
+    con.say(f"wrote ensemble.csv, weights.csv, robustness.csv, ensemble_summary.json and "
+            f"excluded.csv to {args.out}")
+    return 0
+
+
+def _print_weights(result: Any, con: _Console) -> None:
+    if con.quiet:
+        return
+    from rich.table import Table
+
+    table = Table(title=f"Weighted-pool weights, issued {result.issued:%Y-%m-%d}",
+                  title_justify="left")
+    for col in ("quantity", "ahead", "alpha", "weights (model weight)", "not yet rated"):
+        table.add_column(col)
+    for (q, h), part in result.weights.groupby(["quantity", "horizon"], sort=True):
+        top = part.loc[part["weight"] > 0].sort_values("weight", ascending=False)
+        weights = ", ".join(f"{m} {w:.2f}" for m, w in zip(top["model"], top["weight"],
+                                                          strict=True))
+        unrated = ", ".join(part.loc[~part["rated"], "model"]) or "-"
+        table.add_row(str(q), f"{h} wk", f"{part['alpha'].iloc[0]:.3g}", weights, unrated)
+    con.out.print(table)
+
+
+def _cmd_backtest(args: argparse.Namespace, con: _Console) -> int:
+    from forebrief.backtest import backtest
+    from forebrief.io.outputs import write_tables
+    from forebrief.workflow import load_inputs
+
+    settings = _ensemble_settings(args)
+    inputs = load_inputs(args.forecasts, args.observations, columns=_columns(args),
+                         signed=_signed(args))
+    _report_problems(inputs.problems, con)
+    from rich.progress import Progress
+
+    with Progress(console=con.err, transient=True,
+                  disable=con.quiet or not con.err.is_terminal) as bar:
+        task = bar.add_task("back-testing issue dates", total=None)
+
+        def advance(done: int, total: int) -> None:
+            bar.update(task, completed=done, total=total)
+
+        result = backtest(inputs.forecasts.table, inputs.observations.table,
+                          start=args.start, end=args.end, settings=settings, progress=advance)
+    write_tables({"backtest_scores.csv": result.scores,
+                  "weights_history.csv": result.weights_history,
+                  "backtest_by_item.csv": result.by_item,
+                  "excluded.csv": inputs.excluded}, args.out)
+    for note in result.notes:
+        if not con.quiet and "equal weights" not in note:
+            con.say(f"note: {note}")
+    _print_backtest(result, con)
+    con.say(f"back-tested {len(result.issue_dates)} issue date(s), scored as of "
+            f"{result.as_of:%Y-%m-%d}; wrote backtest_scores.csv, weights_history.csv, "
+            f"backtest_by_item.csv and excluded.csv to {args.out}")
+    return 0
+
+
+def _print_backtest(result: Any, con: _Console) -> None:
+    if con.quiet:
+        return
+    from rich.table import Table
+
+    s = result.scores
+    show = s.loc[s["kind"].isin(["ensemble", "baseline"])]
+    table = Table(title="Back-test: ensembles against the baseline (relative WIS < 1 is better)",
+                  title_justify="left")
+    for col in ("quantity", "ahead", "method", "items", "rel. WIS", "in 50%", "in 90%"):
+        table.add_column(col)
+    for row in show.itertuples(index=False):
+        rel = "-" if pd.isna(row.relative_wis) else f"{row.relative_wis:.2f}"
+        table.add_row(str(row.quantity), f"{row.horizon} wk", str(row.model), str(row.n_items),
+                      rel, f"{row.within_50:.0%}", f"{row.within_90:.0%}")
+    con.out.print(table)
+
+
+def _add_pooling_commands(sub: Any) -> None:
+    p = sub.add_parser("baseline", help="write the persistence ('same as last week') forecast",
+                       description="Quantile forecasts whose median is the last observation "
+                       "known on the issue date, with a spread from recent one-week changes.")
+    p.add_argument("--observations", required=True, nargs="+", metavar="O")
+    p.add_argument("--issued", type=_date, required=True, metavar="D",
+                   help="issue date; only data known on D is used")
+    p.add_argument("--name", default="persistence", help="model name (default persistence)")
+    p.add_argument("--horizons", type=_positive_int, nargs="+", default=[1, 2, 3, 4],
+                   metavar="H", help="weeks ahead (default 1 2 3 4)")
+    p.add_argument("--changes-window", type=_positive_int, default=12, metavar="W",
+                   help="weeks of recent one-week changes behind the spread (default 12)")
+    p.add_argument("--out", type=Path, required=True, metavar="FILE",
+                   help="output file (.csv or .parquet)")
+    _add_input_options(p)
+    _add_common(p)
+    p.set_defaults(func=_cmd_baseline)
+
+    for name, helptext in (
+        ("ensemble", "pool the members issued on a date (weighted pool, equal pool, "
+                     "quantile median)"),
+        ("backtest", "rebuild the ensembles for past issue dates and score them"),
+    ):
+        p = sub.add_parser(name, help=helptext, description=helptext[0].upper() + helptext[1:]
+                           + ". Weights use only what was known on each issue date.")
+        p.add_argument("--forecasts", required=True, nargs="+", metavar="F")
+        p.add_argument("--observations", required=True, nargs="+", metavar="O")
+        if name == "ensemble":
+            p.add_argument("--issued", type=_date, required=True, metavar="D",
+                           help="issue date of the members to pool")
+        else:
+            p.add_argument("--from", dest="start", type=_date, required=True, metavar="D1")
+            p.add_argument("--to", dest="end", type=_date, required=True, metavar="D2")
+        p.add_argument("--out", type=Path, required=True, metavar="DIR", help="output folder")
+        _add_score_options(p, alpha_auto=True, scale=False)
+        p.set_defaults(baseline="persistence")
+        p.add_argument("--min-items", type=int, default=6, metavar="N",
+                       help="scored items a member needs before it is rated (default 6)")
+        p.add_argument("--include-baseline", action="store_true",
+                       help="let the baseline be an ensemble member too")
+        _add_input_options(p)
+        _add_common(p)
+        p.set_defaults(func=_cmd_ensemble if name == "ensemble" else _cmd_backtest)
+
+
 # --------------------------------------------------------------------------------------------
 # parser
 
@@ -354,18 +549,8 @@ def build_parser() -> argparse.ArgumentParser:
     _add_common(p)
     p.set_defaults(func=_cmd_score)
 
-    _register_later_commands(sub)
+    _add_pooling_commands(sub)
     return parser
-
-
-def _register_later_commands(sub: Any) -> None:
-    """Commands defined in other modules register themselves here."""
-    try:
-        from forebrief import cli_ensemble
-    except ImportError:  # pragma: no cover - during development only
-        return
-    cli_ensemble.register(sub, add_common=_add_common, add_input=_add_input_options,
-                          add_score=_add_score_options, date=_date, positive_int=_positive_int)
 
 
 def main(argv: Sequence[str] | None = None) -> int:

@@ -43,6 +43,10 @@ __all__ = [
     "BY_MODEL_COLUMNS",
     "ScoreResult",
     "ScoreSettings",
+    "ClassicalArrays",
+    "WindowTable",
+    "build_window",
+    "classical_arrays",
     "score_forecasts",
     "window_items",
 ]
@@ -150,7 +154,7 @@ def window_items(forecasts: pd.DataFrame, *, as_of: pd.Timestamp, window: int) -
 
 
 @dataclass(frozen=True)
-class _Wide:
+class WindowTable:
     """One row per forecast: keys, observation and quantiles at the union of levels."""
 
     heads: pd.DataFrame  # model, region, quantity, issued, week_ending, horizon, observed
@@ -184,9 +188,9 @@ def _latest_only(heads: pd.DataFrame) -> np.ndarray:
     return np.sort(order.index.to_numpy()[keep.to_numpy()])
 
 
-def _build(
+def build_window(
     forecasts: pd.DataFrame, observations: pd.DataFrame, *, as_of: pd.Timestamp, window: int
-) -> tuple[_Wide, int]:
+) -> tuple[WindowTable, int]:
     rows = window_items(forecasts, as_of=as_of, window=window)
     heads, levels, values = _to_wide(rows)
     keep = _latest_only(heads)
@@ -200,10 +204,10 @@ def _build(
         validate="many_to_one",
     )
     has_obs = merged["observed"].notna().to_numpy()
-    return _Wide(merged.loc[has_obs].reset_index(drop=True), levels, values[has_obs]), n_superseded
+    return WindowTable(merged.loc[has_obs].reset_index(drop=True), levels, values[has_obs]), n_superseded
 
 
-def _transform(x: np.ndarray, how: str, what: str) -> np.ndarray:
+def transform_scale(x: np.ndarray, how: str, what: str) -> np.ndarray:
     """Identity, or ln(x + 1) for the log scale (Bosse et al. 2023, PLOS Comput Biol 19(8))."""
     if how in ("natural", "uniform"):
         return x
@@ -215,17 +219,17 @@ def _transform(x: np.ndarray, how: str, what: str) -> np.ndarray:
     return np.log1p(x)
 
 
-def _level_index(levels: np.ndarray, wanted: float) -> int | None:
+def level_index(levels: np.ndarray, wanted: float) -> int | None:
     hit = np.flatnonzero(np.abs(levels - wanted) < _TOL)
     return int(hit[0]) if hit.size else None
 
 
-def _interval_scores(wide: _Wide, scale: str) -> dict[str, np.ndarray]:
+def _interval_scores(wide: WindowTable, scale: str) -> dict[str, np.ndarray]:
     """WIS and its parts per forecast, on the levels each forecast gives (grouped by pattern)."""
     n = len(wide.heads)
     y_raw = wide.heads["observed"].to_numpy(dtype=float)
-    y = _transform(y_raw, scale, "the weighted interval score")
-    q = _transform(wide.values, scale, "the weighted interval score")
+    y = transform_scale(y_raw, scale, "the weighted interval score")
+    q = transform_scale(wide.values, scale, "the weighted interval score")
     out = {
         k: np.full(n, np.nan) for k in ("wis", "dispersion", "overprediction", "underprediction")
     }
@@ -248,7 +252,7 @@ def _interval_scores(wide: _Wide, scale: str) -> dict[str, np.ndarray]:
             out["underprediction"][sel] = parts.underprediction
     # coverage and point error on the natural scale (coverage is unchanged by ln(x + 1))
     for name, lo_t, hi_t in (("in_50", 0.25, 0.75), ("in_90", 0.05, 0.95)):
-        lo, hi = _level_index(wide.levels, lo_t), _level_index(wide.levels, hi_t)
+        lo, hi = level_index(wide.levels, lo_t), level_index(wide.levels, hi_t)
         if lo is None or hi is None:
             out[name] = np.full(n, np.nan)
             continue
@@ -256,31 +260,49 @@ def _interval_scores(wide: _Wide, scale: str) -> dict[str, np.ndarray]:
         ok = ~(np.isnan(ql) | np.isnan(qh))
         cov = interval_coverage(y_raw, np.where(ok, ql, 0.0), np.where(ok, qh, 0.0))
         out[name] = np.where(ok, cov.astype(float), np.nan)
-    mid = _level_index(wide.levels, 0.5)
+    mid = level_index(wide.levels, 0.5)
     median = wide.values[:, mid] if mid is not None else np.full(n, np.nan)
     out["median"] = median
-    med_t = _transform(median, scale, "the absolute error")
+    med_t = transform_scale(median, scale, "the absolute error")
     out["abs_error"] = np.abs(med_t - y)
     with np.errstate(invalid="ignore"):
         out["bias"] = np.sign(median - y_raw)
     return out
 
 
-def _classical(
-    wide: _Wide, settings: ScoreSettings
-) -> tuple[np.ndarray, np.ndarray, np.ndarray, int]:
-    """Bin and information per forecast (nan / -1 where not CM-scored); count degenerate items."""
+@dataclass(frozen=True)
+class ClassicalArrays:
+    """The Classical Model view of a window: CM quantiles and each item's intrinsic range.
+
+    ``quantiles`` and ``observed`` are on the background's scale (ln(x + 1) for the log
+    background); ``lower`` / ``upper`` are the intrinsic range L*, H* of each forecast's item
+    over every model scored for that item plus the observation (Cooke & Slijkhuis 2003,
+    section 15.3.2); ``use`` marks forecasts that are CM-scored (all CM levels present, item
+    not degenerate). ``item`` holds the integer item codes.
+    """
+
+    quantiles: np.ndarray
+    raw_quantiles: np.ndarray
+    observed: np.ndarray
+    raw_observed: np.ndarray
+    lower: np.ndarray
+    upper: np.ndarray
+    use: np.ndarray
+    item: np.ndarray
+    n_degenerate: int
+
+
+def classical_arrays(wide: WindowTable, settings: ScoreSettings) -> ClassicalArrays | None:
+    """Extract the CM quantiles and intrinsic ranges of a window (None if a CM level is absent)."""
     n = len(wide.heads)
-    cols = [_level_index(wide.levels, t) for t in settings.levels]
-    bins = np.full(n, -1, dtype=np.int64)
-    info = np.full(n, np.nan)
+    cols = [level_index(wide.levels, t) for t in settings.levels]
     if n == 0 or any(c is None for c in cols):
-        return bins, info, np.zeros(n, dtype=bool), 0
+        return None
     qcm = wide.values[:, [c for c in cols if c is not None]]
     scored = ~np.isnan(qcm).any(axis=1)
     y_raw = wide.heads["observed"].to_numpy(dtype=float)
-    q_t = _transform(qcm, settings.background, "the log background")
-    y_t = _transform(y_raw, settings.background, "the log background")
+    q_t = transform_scale(qcm, settings.background, "the log background")
+    y_t = transform_scale(y_raw, settings.background, "the log background")
     item, n_item = group_codes(
         [wide.heads[k] for k in ("region", "quantity", "week_ending", "horizon")]
     )
@@ -290,16 +312,36 @@ def _classical(
     np.minimum.at(lo, item[idx], np.minimum(q_t[idx, 0], y_t[idx]))
     np.maximum.at(hi, item[idx], np.maximum(q_t[idx, -1], y_t[idx]))
     degenerate_item = np.isfinite(lo) & (hi <= lo)
-    n_degenerate = int(degenerate_item.sum())
     use = scored & ~degenerate_item[item]
+    lower = np.full(n, np.nan)
+    upper = np.full(n, np.nan)
     idx = np.flatnonzero(use)
     if idx.size:
-        lower, upper = intrinsic_range(lo[item[idx]], hi[item[idx]], overshoot=settings.overshoot)
-        info[idx] = information_score(
-            q_t[idx], lower, upper, cm_probabilities(settings.levels), floor=settings.floor
+        lower[idx], upper[idx] = intrinsic_range(
+            lo[item[idx]], hi[item[idx]], overshoot=settings.overshoot
         )
-        bins[idx] = bin_index(qcm[idx], y_raw[idx])
-    return bins, info, use, n_degenerate
+    return ClassicalArrays(q_t, qcm, y_t, y_raw, lower, upper, use, item,
+                           int(degenerate_item.sum()))
+
+
+def _classical(
+    wide: WindowTable, settings: ScoreSettings
+) -> tuple[np.ndarray, np.ndarray, np.ndarray, int]:
+    """Bin and information per forecast (nan / -1 where not CM-scored); count degenerate items."""
+    n = len(wide.heads)
+    bins = np.full(n, -1, dtype=np.int64)
+    info = np.full(n, np.nan)
+    ca = classical_arrays(wide, settings)
+    if ca is None:
+        return bins, info, np.zeros(n, dtype=bool), 0
+    idx = np.flatnonzero(ca.use)
+    if idx.size:
+        info[idx] = information_score(
+            ca.quantiles[idx], ca.lower[idx], ca.upper[idx], cm_probabilities(settings.levels),
+            floor=settings.floor,
+        )
+        bins[idx] = bin_index(ca.raw_quantiles[idx], ca.raw_observed[idx])
+    return bins, info, ca.use, ca.n_degenerate
 
 
 def _aggregate(
@@ -406,7 +448,7 @@ def score_forecasts(
     """
     settings = settings or ScoreSettings()
     as_of = pd.Timestamp(as_of)
-    wide, n_superseded = _build(forecasts, observations, as_of=as_of, window=settings.window)
+    wide, n_superseded = build_window(forecasts, observations, as_of=as_of, window=settings.window)
     scores = _interval_scores(wide, settings.scale)
     bins, info, cm_scored, n_degenerate = _classical(wide, settings)
     items = wide.heads.copy()

@@ -1,0 +1,587 @@
+"""Ensembles for one issue date, with weights from what was known on that date.
+
+Three methods, each giving quantiles in the forecast format:
+
+- ``weighted_pool``: the linear pool (mixture of CDFs) with Classical-Model performance weights
+  combined x [calibration >= alpha] (Cooke 1991, ch. 12), scored on past items only;
+- ``equal_pool``: the linear pool with equal weights;
+- ``quantile_median``: at each level, the median of the members' quantiles.
+
+Information barrier: the weights come from :func:`forebrief.scoring.engine.score_forecasts`
+run as of the last observed week before the issue date D, on observations with
+``week_ending < D`` and, when vintages exist, ``reported <= D``. Nothing later is read.
+
+The cutoff alpha is fixed or optimised (``"auto"``): among 0 and the members' calibration
+scores, the one that gives the weighted pool, scored as a virtual expert on the window's items,
+the highest combined score (Cooke 1991, ch. 12; Cooke & Goossens 2008, RESS 93). Ties go to the
+smaller alpha. This in-sample choice is optimistic; the back-test measures it out of sample.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Collection, Sequence
+from dataclasses import dataclass, field
+from typing import Any, Literal
+
+import numpy as np
+import pandas as pd
+
+from forebrief._keys import group_codes
+from forebrief.distributions import (
+    linear_pool_quantiles,
+    quantile_median,
+    support_bounds,
+)
+from forebrief.errors import ConfigError
+from forebrief.observations import observations_as_of
+from forebrief.schema import CM_LEVELS, Background, check_choice, cm_probabilities
+from forebrief.scoring.classical import bin_index, calibration_score, information_score
+from forebrief.scoring.engine import (
+    ScoreSettings,
+    build_window,
+    classical_arrays,
+    score_forecasts,
+)
+
+__all__ = [
+    "ENSEMBLE_COLUMNS",
+    "METHODS",
+    "WEIGHT_COLUMNS",
+    "EnsembleResult",
+    "EnsembleSettings",
+    "build_ensemble",
+    "history_scores",
+]
+
+METHODS: tuple[str, ...] = ("weighted_pool", "equal_pool", "quantile_median")
+ENSEMBLE_COLUMNS: tuple[str, ...] = (
+    "method",
+    "region",
+    "quantity",
+    "issued",
+    "week_ending",
+    "horizon",
+    "level",
+    "value",
+)
+WEIGHT_COLUMNS: tuple[str, ...] = (
+    "issued",
+    "model",
+    "quantity",
+    "horizon",
+    "n_items",
+    "calibration",
+    "information",
+    "combined",
+    "weight",
+    "rated",
+    "status",
+    "alpha",
+)
+ROBUSTNESS_COLUMNS: tuple[str, ...] = (
+    "region",
+    "quantity",
+    "week_ending",
+    "horizon",
+    "left_out",
+    "weight",
+    "median",
+    "median_without",
+    "median_change",
+    "width_90",
+    "width_90_without",
+    "width_90_change",
+)
+_TOL = 1e-6
+
+
+@dataclass(frozen=True)
+class EnsembleSettings:
+    """Options of an ensemble build."""
+
+    window: int = 12
+    alpha: float | Literal["auto"] = "auto"
+    min_items: int = 6
+    baseline: str | None = "persistence"
+    include_baseline: bool = False
+    levels: tuple[float, ...] = CM_LEVELS
+    overshoot: float = 0.10
+    background: Background = "uniform"
+    power: float = 1.0
+    signed: tuple[str, ...] = ()
+
+    def __post_init__(self) -> None:
+        check_choice("background", self.background, Background)
+        if self.alpha != "auto":
+            if isinstance(self.alpha, str) or not 0.0 <= float(self.alpha) <= 1.0:
+                raise ConfigError(
+                    f"alpha must be 'auto' or a number in [0, 1]; got {self.alpha!r}"
+                )
+        if not isinstance(self.min_items, int) or self.min_items < 0:
+            raise ConfigError(f"min_items must be a whole number >= 0; got {self.min_items!r}")
+
+    def score_settings(self) -> ScoreSettings:
+        return ScoreSettings(
+            window=self.window,
+            alpha=0.0,
+            levels=self.levels,
+            overshoot=self.overshoot,
+            background=self.background,
+            power=self.power,
+        )
+
+
+@dataclass(frozen=True)
+class EnsembleResult:
+    """The pooled forecasts of one issue date, the weights used, and how they were chosen."""
+
+    issued: pd.Timestamp
+    ensemble: pd.DataFrame
+    weights: pd.DataFrame
+    robustness: pd.DataFrame
+    summary: dict[str, Any]
+    notes: tuple[str, ...] = ()
+    members: tuple[str, ...] = field(default_factory=tuple)
+
+
+# --------------------------------------------------------------------------------------------
+# history: what was known on the issue date
+
+
+@dataclass(frozen=True)
+class History:
+    """Scores of the past window as known on the issue date (empty when nothing is known)."""
+
+    as_of: pd.Timestamp | None
+    observations: pd.DataFrame
+    scores: Any  # ScoreResult | None
+    window: Any  # WindowTable | None
+
+
+def known_on(observations: pd.DataFrame, issued: pd.Timestamp) -> pd.DataFrame:
+    """Observations known on ``issued``: weeks ending before it, latest vintage reported by it.
+
+    The ``reported`` column is cleared afterwards: the vintage has been chosen, and a scoring
+    run as of an earlier week must not drop a revision that was published by ``issued``.
+    """
+    known = observations_as_of(observations, as_of=issued, weeks_before=issued)
+    return known.assign(reported=pd.NaT).astype({"reported": "datetime64[ns]"})
+
+
+def history_scores(
+    forecasts: pd.DataFrame,
+    observations: pd.DataFrame,
+    *,
+    issued: pd.Timestamp,
+    settings: EnsembleSettings,
+) -> History:
+    """Score every model on the window before ``issued`` with only what was known then."""
+    known = known_on(observations, issued)
+    past = forecasts.loc[forecasts["issued"] < issued]
+    if known.empty or past.empty:
+        return History(None, known, None, None)
+    as_of = pd.Timestamp(known["week_ending"].max())
+    scores = score_forecasts(past, known, as_of=as_of, settings=settings.score_settings())
+    window, _ = build_window(past, known, as_of=as_of, window=settings.window)
+    return History(as_of, known, scores, window)
+
+
+# --------------------------------------------------------------------------------------------
+# arrays for one issue date
+
+
+@dataclass(frozen=True)
+class _Cube:
+    """Members' quantiles per item: (items, members, levels) with nan where absent."""
+
+    items: pd.DataFrame  # region, quantity, week_ending, horizon
+    models: np.ndarray  # (m,)
+    levels: np.ndarray  # (k,)
+    values: np.ndarray  # (n, m, k)
+
+
+def _cube(rows: pd.DataFrame, *, item_cols: Sequence[str] = ("region", "quantity",
+                                                             "week_ending", "horizon")) -> _Cube:
+    icode, n_items = group_codes([rows[c] for c in item_cols])
+    models, mcode = np.unique(rows["model"].to_numpy().astype(str), return_inverse=True)
+    levels, lcode = np.unique(np.round(rows["level"].to_numpy(dtype=float), 9),
+                              return_inverse=True)
+    values = np.full((n_items, models.size, levels.size), np.nan)
+    values[icode, mcode, lcode] = rows["value"].to_numpy(dtype=float)
+    first = np.full(n_items, -1, dtype=np.int64)
+    first[icode[::-1]] = np.arange(len(rows) - 1, -1, -1)
+    items = rows.iloc[first][list(item_cols)].reset_index(drop=True)
+    return _Cube(items, models, levels, values)
+
+
+def _rated_weights(
+    history: History, members: np.ndarray, quantity: str, horizon: int, *,
+    settings: EnsembleSettings,
+) -> pd.DataFrame:
+    """Calibration, information and rating of each member for one (quantity, horizon)."""
+    rows = pd.DataFrame({"model": members})
+    rows["quantity"] = quantity
+    rows["horizon"] = horizon
+    if history.scores is not None and not history.scores.by_model.empty:
+        bm = history.scores.by_model
+        bm = bm.loc[(bm["quantity"] == quantity) & (bm["horizon"] == horizon),
+                    ["model", "n_cm_items", "calibration", "information"]]
+        rows = rows.merge(bm, on="model", how="left")
+    else:
+        rows["n_cm_items"] = 0
+        rows["calibration"] = np.nan
+        rows["information"] = np.nan
+    rows["n_cm_items"] = rows["n_cm_items"].fillna(0).astype(int)
+    rows = rows.rename(columns={"n_cm_items": "n_items"})
+    rows["rated"] = (rows["n_items"] >= settings.min_items) & rows["calibration"].notna() & \
+        rows["information"].notna()
+    rows["combined"] = rows["calibration"] * rows["information"]
+    return rows
+
+
+def _cutoff_weights(rated: pd.DataFrame, alpha: float) -> np.ndarray:
+    """Unnormalised weights combined x [calibration >= alpha], zero for unrated members."""
+    cal = rated["calibration"].to_numpy(dtype=float)
+    comb = rated["combined"].to_numpy(dtype=float)
+    ok = rated["rated"].to_numpy(dtype=bool) & np.isfinite(comb)
+    with np.errstate(invalid="ignore"):
+        passed = ok & (cal >= alpha)
+    return np.where(passed, comb, 0.0)
+
+
+@dataclass(frozen=True)
+class _VirtualExpert:
+    calibration: float
+    information: float
+    n_items: int
+
+    @property
+    def combined(self) -> float:
+        return self.calibration * self.information
+
+
+def _dm_history_cube(history: History, models: np.ndarray, quantity: str, horizon: int,
+                     settings: EnsembleSettings) -> tuple[np.ndarray, np.ndarray, np.ndarray,
+                                                          np.ndarray] | None:
+    """Members' CM quantiles on the past window's items (background scale), with ranges."""
+    if history.window is None:
+        return None
+    ca = classical_arrays(history.window, settings.score_settings())
+    if ca is None:
+        return None
+    heads = history.window.heads
+    sel = (ca.use & (heads["quantity"] == quantity).to_numpy()
+           & (heads["horizon"] == horizon).to_numpy() & heads["model"].isin(models).to_numpy())
+    idx = np.flatnonzero(sel)
+    if idx.size == 0:
+        return None
+    icode, n_items = group_codes([ca.item[idx]])
+    mpos = {m: j for j, m in enumerate(models)}
+    mcode = np.array([mpos[m] for m in heads["model"].to_numpy()[idx]])
+    cube = np.full((n_items, models.size, len(settings.levels)), np.nan)
+    cube[icode, mcode] = ca.quantiles[idx]
+    lower = np.empty(n_items)
+    upper = np.empty(n_items)
+    y = np.empty(n_items)
+    lower[icode] = ca.lower[idx]
+    upper[icode] = ca.upper[idx]
+    y[icode] = ca.observed[idx]
+    return cube, lower, upper, y
+
+
+def _score_virtual_expert(cube: np.ndarray, lower: np.ndarray, upper: np.ndarray,
+                          y: np.ndarray, weights: np.ndarray,
+                          settings: EnsembleSettings) -> _VirtualExpert:
+    """Calibration and information of the pool of ``cube`` with member ``weights``."""
+    levels = np.asarray(settings.levels)
+    w = np.broadcast_to(weights, cube.shape[:2]).copy()
+    present = ~np.isnan(cube).all(axis=2)
+    w = np.where(present, w, 0.0)
+    ok = w.sum(axis=1) > 0
+    if not ok.any():
+        return _VirtualExpert(np.nan, np.nan, 0)
+    dm = linear_pool_quantiles(cube[ok], levels, w[ok], levels, lower=lower[ok], upper=upper[ok])
+    p = cm_probabilities(settings.levels)
+    bins = bin_index(dm, y[ok])
+    counts = np.bincount(bins, minlength=p.size)
+    cal = float(calibration_score(counts, p, power=settings.power))
+    info = float(np.nanmean(information_score(dm, lower[ok], upper[ok], p)))
+    return _VirtualExpert(cal, info, int(ok.sum()))
+
+
+def _choose_alpha(rated: pd.DataFrame, dm_data: tuple[np.ndarray, ...] | None,
+                  settings: EnsembleSettings) -> tuple[float, _VirtualExpert | None, int]:
+    """Optimised cutoff over {0} and the rated members' calibration scores; ties to the smaller."""
+    candidates = [0.0]
+    if settings.alpha == "auto":
+        cal = rated.loc[rated["rated"], "calibration"].to_numpy(dtype=float)
+        candidates = sorted({0.0, *[float(c) for c in cal if np.isfinite(c)]})
+    else:
+        candidates = [float(settings.alpha)]
+    if dm_data is None:
+        return candidates[0] if settings.alpha != "auto" else 0.0, None, len(candidates)
+    cube, lower, upper, y = dm_data
+    best_alpha, best = candidates[0], None
+    for alpha in candidates:
+        w = _cutoff_weights(rated, alpha)
+        if not (w > 0).any():
+            continue
+        ve = _score_virtual_expert(cube, lower, upper, y, w, settings)
+        if not np.isfinite(ve.combined):
+            continue
+        if best is None or ve.combined > best.combined + 1e-12:
+            best_alpha, best = alpha, ve
+    return best_alpha, best, len(candidates)
+
+
+# --------------------------------------------------------------------------------------------
+# pooling
+
+
+def _common_levels(values: np.ndarray, levels: np.ndarray) -> np.ndarray:
+    """(n, k) mask of levels every present member gives for each item."""
+    present_member = ~np.isnan(values).all(axis=2)  # (n, m)
+    has_level = ~np.isnan(values)  # (n, m, k)
+    return np.all(has_level | ~present_member[:, :, None], axis=1) & present_member.any(axis=1)[
+        :, None
+    ]
+
+
+def _pool_all(values: np.ndarray, levels: np.ndarray, weights: np.ndarray,
+              out_mask: np.ndarray, lower: np.ndarray, upper: np.ndarray) -> np.ndarray:
+    """Linear-pool quantiles at each item's common levels (nan elsewhere)."""
+    out = np.full(out_mask.shape, np.nan)
+    patterns, inverse = np.unique(out_mask, axis=0, return_inverse=True)
+    inverse = inverse.reshape(-1)
+    for p, pattern in enumerate(patterns):
+        if not pattern.any():
+            continue
+        sel = np.flatnonzero(inverse == p)
+        cols = np.flatnonzero(pattern)
+        out[np.ix_(sel, cols)] = linear_pool_quantiles(
+            values[sel], levels, weights[sel], levels[cols], lower=lower[sel], upper=upper[sel]
+        )
+    return out
+
+
+def _long(items: pd.DataFrame, method: str, issued: pd.Timestamp, levels: np.ndarray,
+          values: np.ndarray) -> pd.DataFrame:
+    n, k = values.shape
+    ok = ~np.isnan(values)
+    ii, kk = np.nonzero(ok)
+    out = items.iloc[ii].reset_index(drop=True)
+    out.insert(0, "method", method)
+    out["issued"] = issued
+    out["level"] = levels[kk]
+    out["value"] = values[ii, kk]
+    return out
+
+
+def build_ensemble(
+    forecasts: pd.DataFrame,
+    observations: pd.DataFrame,
+    *,
+    issued: pd.Timestamp,
+    settings: EnsembleSettings | None = None,
+    history: History | None = None,
+) -> EnsembleResult:
+    """Build the three ensembles for the forecasts issued on ``issued``.
+
+    ``forecasts`` and ``observations`` are validated tables; only observations known on the
+    issue date are used (see the module docstring). Cost: one scoring run of the window, one
+    pooling pass per candidate alpha over the window's items, and one over the targets.
+    """
+    settings = settings or EnsembleSettings()
+    issued = pd.Timestamp(issued)
+    notes: list[str] = []
+    baseline = settings.baseline
+    excluded_models = set() if settings.include_baseline or baseline is None else {baseline}
+    today = forecasts.loc[(forecasts["issued"] == issued)
+                          & ~forecasts["model"].isin(excluded_models)]
+    if today.empty:
+        dates = sorted(pd.Timestamp(d) for d in forecasts.loc[
+            ~forecasts["model"].isin(excluded_models), "issued"].unique())
+        near = sorted(dates, key=lambda d: abs((d - issued).days))[:3]
+        listed = ", ".join(f"{d:%Y-%m-%d}" for d in sorted(near)) or "none"
+        raise ConfigError(
+            f"no member forecast is issued on {issued:%Y-%m-%d}; the nearest issue dates in "
+            f"the forecasts are {listed}; fix: pass one of them as the issue date"
+        )
+    if history is None:
+        history = history_scores(forecasts, observations, issued=issued, settings=settings)
+    if history.as_of is None:
+        why = ("no observations are known" if history.observations.empty
+               else "no model has forecasts")
+        notes.append(f"{why} before {issued:%Y-%m-%d}: no model can be rated yet, so the "
+                     "weighted pool uses equal weights")
+    cube = _cube(today)
+    n, m, k = cube.values.shape
+    lower, upper = support_bounds(cube.values, overshoot=settings.overshoot)
+    common = _common_levels(cube.values, cube.levels)
+    member_present = ~np.isnan(cube.values).all(axis=2)
+
+    weight_rows = []
+    pool_w = np.zeros((n, m))
+    summary_groups = []
+    groups = cube.items[["quantity", "horizon"]].drop_duplicates().sort_values(
+        ["quantity", "horizon"])
+    for quantity, horizon in groups.itertuples(index=False, name=None):
+        in_group = ((cube.items["quantity"] == quantity)
+                    & (cube.items["horizon"] == horizon)).to_numpy()
+        gm = np.flatnonzero(member_present[in_group].any(axis=0))
+        members = cube.models[gm]
+        rated = _rated_weights(history, members, quantity, int(horizon), settings=settings)
+        dm_data = _dm_history_cube(history, members, quantity, int(horizon), settings)
+        alpha, ve, n_candidates = _choose_alpha(rated, dm_data, settings)
+        raw = _cutoff_weights(rated, alpha)
+        fallback = not (raw > 0).any()
+        total = raw.sum()
+        norm_w = raw / total if total > 0 else np.full(raw.size, 1.0 / max(raw.size, 1))
+        status = []
+        for _, r in rated.iterrows():
+            if not r["rated"]:
+                status.append(f"not yet rated ({int(r['n_items'])} scored items, "
+                              f"{settings.min_items} needed)")
+            elif r["calibration"] < alpha:
+                status.append(f"below the calibration cutoff {alpha:.3g}")
+            else:
+                status.append("rated")
+        table = rated.assign(weight=norm_w, status=status, alpha=alpha, issued=issued)
+        weight_rows.append(table)
+        # per item: the group's unnormalised weights, renormalised over the members present
+        w_members = np.zeros(m)
+        w_members[gm] = raw if not fallback else 1.0
+        rows_idx = np.flatnonzero(in_group)
+        w_items = np.where(member_present[rows_idx], w_members[None, :], 0.0)
+        zero = w_items.sum(axis=1) <= 0
+        if zero.any():
+            w_items[zero] = member_present[rows_idx][zero].astype(float)
+            if not fallback:
+                notes.append(f"{quantity}, {horizon} week(s) ahead: on {int(zero.sum())} "
+                             "target(s) no member present has weight; equal weights used there")
+        pool_w[rows_idx] = w_items
+        if fallback:
+            notes.append(f"{quantity}, {horizon} week(s) ahead: no member is rated and above "
+                         "the cutoff, so the weighted pool uses equal weights")
+        eq = None
+        if dm_data is not None:
+            eq = _score_virtual_expert(*dm_data, np.ones(members.size), settings)
+        summary_groups.append({
+            "quantity": quantity,
+            "horizon": int(horizon),
+            "alpha": alpha,
+            "alpha_mode": "auto" if settings.alpha == "auto" else "fixed",
+            "candidates": n_candidates,
+            "equal_weight_fallback": bool(fallback),
+            "pool_calibration": None if ve is None else ve.calibration,
+            "pool_information": None if ve is None else ve.information,
+            "pool_combined": None if ve is None else ve.combined,
+            "pool_items": 0 if ve is None else ve.n_items,
+            "equal_pool_calibration": None if eq is None else eq.calibration,
+            "equal_pool_information": None if eq is None else eq.information,
+            "members": [str(x) for x in members],
+            "rated": [str(x) for x in rated.loc[rated["rated"], "model"]],
+        })
+
+    weighted = _pool_all(cube.values, cube.levels, pool_w, common, lower, upper)
+    equal = _pool_all(cube.values, cube.levels, member_present.astype(float), common, lower,
+                      upper)
+    qmed = np.where(common, quantile_median(cube.values), np.nan)
+    floor = ~cube.items["quantity"].isin(list(settings.signed)).to_numpy()[:, None]
+    parts = []
+    for method, vals in (("weighted_pool", weighted), ("equal_pool", equal),
+                         ("quantile_median", qmed)):
+        vals = np.where(floor & ~np.isnan(vals), np.maximum(vals, 0.0), vals)
+        parts.append(_long(cube.items, method, issued, cube.levels, vals))
+    ensemble = pd.concat(parts, ignore_index=True)[list(ENSEMBLE_COLUMNS)]
+    ensemble["method"] = pd.Categorical(ensemble["method"], categories=list(METHODS))
+    ensemble = ensemble.sort_values(["method", "quantity", "region", "horizon", "week_ending",
+                                     "level"], kind="stable").reset_index(drop=True)
+    ensemble["method"] = ensemble["method"].astype(str)
+    weights = pd.concat(weight_rows, ignore_index=True)[list(WEIGHT_COLUMNS)]
+    robustness = _robustness(cube, pool_w, lower, upper, settings)
+    summary = {
+        "issued": f"{issued:%Y-%m-%d}",
+        "history_as_of": None if history.as_of is None else f"{history.as_of:%Y-%m-%d}",
+        "window_weeks": settings.window,
+        "min_items": settings.min_items,
+        "baseline": baseline,
+        "baseline_included": settings.include_baseline,
+        "groups": summary_groups,
+        "notes": notes,
+    }
+    return EnsembleResult(issued, ensemble, weights, robustness, summary, tuple(notes),
+                          tuple(str(x) for x in cube.models))
+
+
+def _robustness(cube: _Cube, pool_w: np.ndarray, lower: np.ndarray, upper: np.ndarray,
+                settings: EnsembleSettings) -> pd.DataFrame:
+    """Leave-one-out change of the weighted pool's median and 90% width, per item and member."""
+    lv = cube.levels
+    need = [np.flatnonzero(np.abs(lv - t) < _TOL) for t in (0.05, 0.5, 0.95)]
+    if any(x.size == 0 for x in need):
+        return pd.DataFrame(columns=list(ROBUSTNESS_COLUMNS))
+    out_levels = np.array([0.05, 0.5, 0.95])
+    full = linear_pool_quantiles(cube.values, lv, pool_w, out_levels, lower=lower, upper=upper)
+    present = ~np.isnan(cube.values).all(axis=2)
+    wsum = pool_w.sum(axis=1, keepdims=True)
+    share = np.divide(pool_w, wsum, out=np.zeros_like(pool_w), where=wsum > 0)
+    rows = []
+    for j, model in enumerate(cube.models):
+        sel = np.flatnonzero(present[:, j] & (present.sum(axis=1) > 1))
+        if sel.size == 0:
+            continue
+        vals = cube.values[sel].copy()
+        vals[:, j, :] = np.nan
+        w = pool_w[sel].copy()
+        w[:, j] = 0.0
+        left = np.where(~np.isnan(vals).all(axis=2), 1.0, 0.0)
+        w = np.where(w.sum(axis=1, keepdims=True) > 0, w, left)
+        lo, hi = support_bounds(vals, overshoot=settings.overshoot)
+        without = linear_pool_quantiles(vals, lv, w, out_levels, lower=lo, upper=hi)
+        part = cube.items.iloc[sel].reset_index(drop=True)
+        part["left_out"] = model
+        part["weight"] = share[sel, j]
+        part["median"] = full[sel, 1]
+        part["median_without"] = without[:, 1]
+        part["median_change"] = without[:, 1] - full[sel, 1]
+        part["width_90"] = full[sel, 2] - full[sel, 0]
+        part["width_90_without"] = without[:, 2] - without[:, 0]
+        part["width_90_change"] = part["width_90_without"] - part["width_90"]
+        rows.append(part)
+    if not rows:
+        return pd.DataFrame(columns=list(ROBUSTNESS_COLUMNS))
+    out = pd.concat(rows, ignore_index=True)[list(ROBUSTNESS_COLUMNS)]
+    return out.sort_values(["quantity", "region", "horizon", "week_ending", "left_out"],
+                           kind="stable").reset_index(drop=True)
+
+
+def with_baseline(forecasts: pd.DataFrame, observations: pd.DataFrame, *,
+                  issue_dates: Collection[pd.Timestamp], name: str,
+                  horizons: Sequence[int] = (1, 2, 3, 4),
+                  signed: Collection[str] = ()) -> tuple[pd.DataFrame, bool]:
+    """Add persistence forecasts named ``name`` for each issue date, unless already present.
+
+    Each is built from the observations known on its issue date only. Returns the combined
+    table and whether the baseline was generated.
+    """
+    from forebrief.baseline import persistence_forecast
+
+    if name in set(forecasts["model"].unique()):
+        return forecasts, False
+    parts = [forecasts]
+    for d in sorted(set(issue_dates)):
+        known = known_on(observations, pd.Timestamp(d))
+        if known.empty:
+            continue
+        floors = sorted(set(known["quantity"]) - set(signed))
+        base = persistence_forecast(known[["region", "quantity", "week_ending", "value"]],
+                                    issued=pd.Timestamp(d), horizons=horizons, name=name,
+                                    nonnegative=floors)
+        days = (base["week_ending"] - base["issued"]).dt.days.to_numpy()
+        base = base.assign(horizon=np.ceil(days / 7).astype(np.int64))
+        parts.append(base)
+    out = pd.concat(parts, ignore_index=True)
+    for col in ("issued", "week_ending"):
+        out[col] = out[col].astype("datetime64[ns]")
+    return out, True
