@@ -10,6 +10,7 @@ shows it), so the first data row is row 2; in Parquet the first data row is row 
 
 from __future__ import annotations
 
+import datetime as dt
 from collections.abc import Callable, Collection, Sequence
 from dataclasses import dataclass, field
 from typing import Any, Literal
@@ -37,7 +38,7 @@ __all__ = [
 ]
 
 Severity = Literal["error", "warning"]
-_LEVEL_TOL = 1e-9
+_LEVEL_DECIMALS = 9  # levels equal to 9 decimals are the same level
 _MAX_VALUES_SHOWN = 4
 _MAX_RANGES_SHOWN = 8
 
@@ -262,6 +263,15 @@ def _check_columns(
     return problems
 
 
+def _no_rows_warning(raw: RawFile, kind: str) -> list[Problem]:
+    """A file with a header and no data rows adds nothing; say so rather than pass silently."""
+    if len(raw.frame):
+        return []
+    return [_file_problem(raw.label, "no-rows", f"the {kind} file has a header but no data rows",
+                          "check the export; a file with nothing to add can be removed",
+                          severity="warning")]
+
+
 def _stack(files: Sequence[RawFile], columns: Sequence[str]) -> tuple[pd.DataFrame, list[str]]:
     """Concatenate usable files, keeping the file code and the row number of every row."""
     parts = []
@@ -280,12 +290,26 @@ def _stack(files: Sequence[RawFile], columns: Sequence[str]) -> tuple[pd.DataFra
     return pd.concat(parts, ignore_index=True), labels
 
 
+def _cell_text(v: object) -> str:
+    """One cell as text: '' for empty/NaN/NaT; a date (Parquet date or midnight timestamp) as
+    YYYY-MM-DD so that typed date columns read like the text ones."""
+    if v is None or v is pd.NaT or (isinstance(v, float) and np.isnan(v)):
+        return ""
+    if isinstance(v, np.datetime64):
+        v = pd.Timestamp(v)
+    if isinstance(v, dt.datetime):
+        if (v.hour, v.minute, v.second, v.microsecond) == (0, 0, 0, 0):
+            return v.strftime("%Y-%m-%d")
+        return str(v)
+    if isinstance(v, dt.date):
+        return v.strftime("%Y-%m-%d")
+    return str(v).strip()
+
+
 def _text(series: pd.Series) -> pd.Series:
-    """A column as stripped text ('' for empty cells); strips each distinct value once."""
+    """A column as stripped text ('' for empty cells); converts each distinct value once."""
     codes, uniques = pd.factorize(series, use_na_sentinel=False)
-    cleaned = pd.Series(uniques, dtype=object).map(
-        lambda v: "" if v is None or (isinstance(v, float) and np.isnan(v)) else str(v).strip()
-    )
+    cleaned = pd.Series(uniques, dtype=object).map(_cell_text)
     return pd.Series(cleaned.to_numpy(dtype=object)[codes], index=series.index, dtype="str")
 
 
@@ -297,11 +321,37 @@ def _parse_dates(text: pd.Series) -> pd.Series:
     return pd.Series(parsed.to_numpy()[codes], index=text.index, dtype="datetime64[ns]")
 
 
+class _NumberText:
+    """The text of a numeric column, made only for the rows asked for (``.loc[mask]`` or
+    ``[mask]``, like a Series): formatting every row of a large file costs seconds.
+
+    An empty cell is '' (``astype(str)`` keeps NaN missing under pandas' string dtype, and an
+    empty cell would then be reported as "not a number"); -1.0 is shown as '-1'.
+    """
+
+    def __init__(self, values: pd.Series) -> None:
+        self._values = values
+
+    @property
+    def loc(self) -> _NumberText:
+        return self
+
+    def __getitem__(self, mask: Any) -> pd.Series:
+        sub = self._values[mask]
+        return pd.Series([_float_text(v) for v in sub.to_numpy()], index=sub.index, dtype=object)
+
+
+def _float_text(v: float) -> str:
+    if np.isnan(v):
+        return ""
+    return str(np.format_float_positional(v, trim="-"))
+
+
 def _parse_numbers(col: pd.Series) -> tuple[pd.Series, pd.Series]:
     """Return (numbers, shown text); text that is not a number becomes NaN (reported by caller)."""
     if pd.api.types.is_numeric_dtype(col) and not pd.api.types.is_bool_dtype(col):
         values = col.astype(float)
-        return values, values  # shown as text only for the rows reported
+        return values, _NumberText(values)  # type: ignore[return-value]
     text = _text(col)
     values = pd.to_numeric(text, errors="coerce").astype(float)
     return values, text
@@ -326,7 +376,7 @@ def _number_checks(c: _Collector, column: str, values: pd.Series, shown: pd.Seri
           fix=f"fill in {what}, or remove the row if there is none")
     inf = np.isinf(arr)
     c.add(inf, check="infinite", column=column, shown=shown, message=f"{what} is infinite",
-          fix=f"write a finite {what}")
+          fix=f"write {what} as a finite number")
     return np.isfinite(arr)
 
 
@@ -370,6 +420,7 @@ def validate_forecasts(
             )
         else:
             usable.append(raw)
+            problems.extend(_no_rows_warning(raw, "forecast"))
     frame, labels = _stack(usable, FORECAST_COLUMNS)
     c = _Collector(frame, labels)
     for col in ("model", "region", "quantity", "issued", "week_ending"):
@@ -416,10 +467,12 @@ def validate_forecasts(
     fc, _ = group_codes([frame[k] for k in ("model", "region", "quantity", "issued",
                                              "week_ending")])
     # duplicates and crossing, on rows whose level is a number
-    rlevel = np.where(level_ok, np.round(lv / _LEVEL_TOL) * _LEVEL_TOL, np.nan)
+    rlevel = np.where(level_ok, np.round(lv, _LEVEL_DECIMALS), np.nan)
     order = np.lexsort((np.arange(len(frame)), rlevel, fc))
     fc_s, lv_s, vv_s = fc[order], rlevel[order], vv[order]
-    same_key = np.r_[False, (fc_s[1:] == fc_s[:-1]) & (lv_s[1:] == lv_s[:-1])]
+    # (np.r_[False, <empty>] would have one element too many when there are no rows)
+    same_key = np.zeros(len(frame), dtype=bool)
+    same_key[1:] = (fc_s[1:] == fc_s[:-1]) & (lv_s[1:] == lv_s[:-1])
     # group duplicates: all rows in a run of identical (forecast, level)
     run_start = ~same_key
     run_id = np.cumsum(run_start) - 1
@@ -454,7 +507,9 @@ def validate_forecasts(
     if idx_first.size > 1:
         a, b = idx_first[:-1], idx_first[1:]
         same = fc_s[a] == fc_s[b]
-        dec = same & (vv_s[b] < vv_s[a]) & np.isfinite(vv_s[a]) & np.isfinite(vv_s[b])
+        in_range = (lv_s > 0) & (lv_s < 1)  # False for NaN: bad levels are reported already
+        dec = (same & (vv_s[b] < vv_s[a]) & np.isfinite(vv_s[a]) & np.isfinite(vv_s[b])
+               & in_range[a] & in_range[b])
         cross_rows = np.zeros(len(frame), dtype=bool)
         cross_rows[order[a[dec]]] = True
         cross_rows[order[b[dec]]] = True
@@ -630,6 +685,7 @@ def validate_observations(
             )
         else:
             usable.append(raw)
+            problems.extend(_no_rows_warning(raw, "observation"))
     has_vintages = any("reported" in r.frame.columns for r in usable)
     cols = (*OBSERVATION_COLUMNS, "reported") if has_vintages else OBSERVATION_COLUMNS
     frame, labels = _stack(usable, cols)
@@ -696,8 +752,13 @@ def validate_observations(
           fix="remove the repeated row")
     if as_of is not None:
         future = (week_ending > as_of).to_numpy() | (reported > as_of).to_numpy()
+        # show the reported date too: a past week can be in the future through its vintage
+        shown_future: pd.Series | Callable[[np.ndarray], Any] = frame["week_ending"]
+        if has_vintages:
+            def shown_future(m: np.ndarray) -> pd.Series:
+                return frame["week_ending"][m] + " (reported " + frame["reported"][m] + ")"
         c.add(future & ~c.error_rows, check="future", column="week_ending",
-              shown=frame["week_ending"], severity="warning",
+              shown=shown_future, severity="warning",
               message=f"observation dated after the as-of date {as_of:%Y-%m-%d}; "
               "a run as of that date ignores it",
               fix="nothing, if this is later data; otherwise check the dates")

@@ -8,12 +8,15 @@ from __future__ import annotations
 
 import os
 from collections.abc import Collection, Mapping, Sequence
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
+from typing import TypeVar
 
 import pandas as pd
 
-from forebrief.io.tables import read_raw_table, resolve_inputs
+from forebrief.errors import InputError
+from forebrief.io.tables import RawFile, read_raw_table, resolve_inputs
 from forebrief.validate import (
+    EXCLUDED_COLUMNS,
     CheckReport,
     Problem,
     ValidatedForecasts,
@@ -26,6 +29,7 @@ from forebrief.validate import (
 __all__ = ["Inputs", "load_forecasts", "load_inputs", "load_observations"]
 
 PathSpec = str | os.PathLike[str] | Sequence[str | os.PathLike[str]]
+_V = TypeVar("_V", ValidatedForecasts, ValidatedObservations)
 
 
 @dataclass(frozen=True)
@@ -49,19 +53,60 @@ class Inputs:
         return CheckReport(self.problems, self.forecasts, self.observations)
 
 
+def _read_all(spec: PathSpec, columns: Mapping[str, str] | None,
+              kind: str) -> tuple[list[RawFile], list[Problem], pd.DataFrame]:
+    """Read every file of ``spec``; a file that cannot be read is reported and excluded.
+
+    One team's broken file must not stop the others: it becomes an error ``Problem`` and an
+    ``excluded`` row. Only when no file at all can be read is its ``InputError`` raised.
+    """
+    raws: list[RawFile] = []
+    problems: list[Problem] = []
+    excluded: list[dict[str, str]] = []
+    first_error: InputError | None = None
+    for path in resolve_inputs(spec):
+        try:
+            raws.append(read_raw_table(path, columns=columns))
+        except InputError as exc:
+            first_error = first_error or exc
+            label = str(path)
+            text = str(exc).removeprefix(f"{label}: ")
+            message, sep, fix = text.rpartition("; fix: ")
+            if not sep:
+                message, fix = text, "check the file"
+            problems.append(Problem("error", "unreadable-file", label, (), "", "", (), message,
+                                    fix))
+            excluded.append({"kind": kind, "file": label, "rows": "all", "model": "",
+                             "region": "", "quantity": "", "issued": "", "week_ending": "",
+                             "reason": message})
+    if first_error is not None and not raws:
+        raise first_error
+    return raws, problems, pd.DataFrame(excluded, columns=list(EXCLUDED_COLUMNS))
+
+
+def _with_unreadable(validated: _V, problems: list[Problem], excluded: pd.DataFrame) -> _V:
+    if not problems:
+        return validated
+    parts = [p for p in (excluded, validated.excluded) if not p.empty]
+    return replace(validated, problems=(*problems, *validated.problems),
+                   excluded=pd.concat(parts, ignore_index=True),
+                   files=(*(p.file for p in problems), *validated.files))
+
+
 def load_forecasts(spec: PathSpec, *, columns: Mapping[str, str] | None = None,
                    signed: Collection[str] = ()) -> ValidatedForecasts:
     """Read every forecast file named by ``spec`` (files, folders, globs) and validate them."""
-    raws = [read_raw_table(p, columns=columns) for p in resolve_inputs(spec)]
-    return validate_forecasts(raws, signed=signed)
+    raws, problems, excluded = _read_all(spec, columns, "forecast")
+    return _with_unreadable(validate_forecasts(raws, signed=signed), problems, excluded)
 
 
 def load_observations(spec: PathSpec, *, columns: Mapping[str, str] | None = None,
                       signed: Collection[str] = (),
                       as_of: pd.Timestamp | None = None) -> ValidatedObservations:
     """Read and validate observation files (with optional ``reported`` vintages)."""
-    raws = [read_raw_table(p, columns=columns) for p in resolve_inputs(spec)]
-    return validate_observations(raws, signed=signed, as_of=as_of)
+    raws, problems, excluded = _read_all(spec, columns, "observation")
+    return _with_unreadable(validate_observations(raws, signed=signed, as_of=as_of), problems,
+                            excluded)
 
 
 def load_inputs(forecasts: PathSpec, observations: PathSpec, *,

@@ -142,6 +142,19 @@ def read_raw_table(path: Path, *, columns: Mapping[str, str] | None = None) -> R
         renamed = {k: v for k, v in columns.items() if k in frame.columns}
         frame = frame.rename(columns=renamed)
     frame.columns = [str(c).strip() for c in frame.columns]
+    twice = sorted({c for c in frame.columns if list(frame.columns).count(c) > 1})
+    if twice:
+        # two columns with one name cannot be told apart (for example 'value' and a column
+        # mapped onto it with --columns); refuse the file rather than guess
+        sources = {ours: theirs for theirs, ours in renamed.items()}
+        shown = ", ".join(
+            repr(c) + (f" (also mapped from {sources[c]!r} by --columns)" if c in sources else "")
+            for c in twice
+        )
+        raise InputError(
+            f"{label}: column {shown} appears more than once; "
+            "fix: rename or remove one of them, or change the --columns mapping"
+        )
     return RawFile(label=label, frame=frame, first_row=first_row, renamed=renamed)
 
 
