@@ -59,7 +59,9 @@ def backtest(
     """Back-test the ensembles for every issue date from ``start`` to ``end``.
 
     The baseline named in ``settings`` (default ``persistence``) is generated for each issue
-    date from the data known then, unless the forecasts already contain it. Scoring uses the
+    date from the data known then, unless the forecasts already contain it; a generated
+    baseline is scored but, unless ``include_baseline``, not shown to the ensembles, so each
+    date's ensemble is the one :func:`build_ensemble` gives on ``forecasts``. Scoring uses the
     latest vintage of every observation. Cost: one ensemble build per issue date plus one
     scoring run over the period.
     """
@@ -84,9 +86,13 @@ def backtest(
         if generated:
             notes.append(f"baseline {baseline!r} generated for each issue date from the data "
                          "known on that date")
+    # The ensembles see the forecasts exactly as `forebrief ensemble` would on each date: a
+    # baseline generated here for scoring stays out of the members' scoring panel (it would
+    # widen the intrinsic ranges and so change every information score), unless it is a member.
+    pool_from = table if settings.include_baseline else forecasts
     ensembles, weights = [], []
     for i, d in enumerate(dates):
-        ens = build_ensemble(table, observations, issued=d, settings=settings)
+        ens = build_ensemble(pool_from, observations, issued=d, settings=settings)
         ensembles.append(ens.ensemble)
         weights.append(ens.weights)
         notes.extend(f"{d:%Y-%m-%d}: {n}" for n in ens.notes)

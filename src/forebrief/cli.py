@@ -506,6 +506,88 @@ def _add_pooling_commands(sub: Any) -> None:
         p.set_defaults(func=_cmd_ensemble if name == "ensemble" else _cmd_backtest)
 
 
+def _brief_config(args: argparse.Namespace) -> Any:
+    from forebrief.config import BriefingConfig, load_config
+
+    cfg = load_config(args.config) if args.config else BriefingConfig()
+    changes: dict[str, Any] = {}
+    if args.forecasts:
+        changes["forecasts"] = tuple(Path(p) for p in args.forecasts)
+    if args.observations:
+        changes["observations"] = tuple(Path(p) for p in args.observations)
+    if args.archive:
+        changes["archive"] = args.archive
+    cfg = cfg.with_overrides(**changes)
+    if not cfg.forecasts or not cfg.observations:
+        raise ConfigError(
+            "no forecasts or observations to read; fix: pass --config forebrief.toml, or "
+            "--forecasts FILES_OR_FOLDER and --observations FILE"
+        )
+    return cfg
+
+
+def _cmd_brief(args: argparse.Namespace, con: _Console) -> int:
+    from forebrief.pipeline import record_briefing
+
+    cfg = _brief_config(args)
+    with con.stages(8) as stage:
+        outcome = record_briefing(cfg, issued=args.issued, stage=stage)
+    _report_problems(outcome.problems, con)
+    record = outcome.record
+    con.out.print(str(record), markup=False)
+    con.say(f"briefing written: {record / 'briefing.txt'}")
+    return 0
+
+
+def _cmd_demo(args: argparse.Namespace, con: _Console) -> int:
+    from forebrief.config import load_config
+    from forebrief.demo import generate_scenario, write_scenario
+
+    out: Path = args.out
+    try:
+        out.mkdir(parents=True, exist_ok=True)
+    except OSError as exc:
+        raise ConfigError(f"{out}: cannot create the demo folder ({exc.strerror}); fix: "
+                          "choose another --out") from None
+    write_scenario(generate_scenario(), out)
+    cfg = load_config(out / "forebrief.toml").with_overrides(archive=out / "archive")
+    con.say(f"demo inputs written to {out} (an invented scenario); running the weekly briefing")
+    from forebrief.pipeline import record_briefing
+
+    with con.stages(8) as stage:
+        outcome = record_briefing(cfg, issued=None, stage=stage)
+    _report_problems(outcome.problems, con)
+    record = outcome.record
+    con.out.print(str(record), markup=False)
+    con.say(f"briefing written: {record / 'briefing.txt'}; rerun it with "
+            f"forebrief brief --config {out / 'forebrief.toml'}")
+    return 0
+
+
+def _add_weekly_commands(sub: Any) -> None:
+    p = sub.add_parser("brief", help="run the weekly briefing and write its dated record",
+                       description="Validate, score, pool, back-test and write the dated "
+                       "record ARCHIVE/<issue date>/ with the facts and the narrative.")
+    p.add_argument("--config", type=Path, metavar="FILE", help="forebrief.toml")
+    p.add_argument("--issued", type=_date, metavar="D",
+                   help="issue date (default: the latest in the forecasts)")
+    p.add_argument("--forecasts", nargs="+", metavar="F", help="override the config's forecasts")
+    p.add_argument("--observations", nargs="+", metavar="O",
+                   help="override the config's observations")
+    p.add_argument("--archive", type=Path, metavar="DIR", help="override the archive folder")
+    _add_common(p)
+    p.set_defaults(func=_cmd_brief)
+
+    p = sub.add_parser("demo", help="run the weekly briefing on an invented scenario",
+                       description="Write the invented demo scenario (per-team submissions, "
+                       "observations with vintages, forebrief.toml) into DIR and run the "
+                       "weekly briefing there, with the archive at DIR/archive.")
+    p.add_argument("--out", type=Path, default=Path("forebrief-demo"), metavar="DIR",
+                   help="folder for the demo (default ./forebrief-demo)")
+    _add_common(p)
+    p.set_defaults(func=_cmd_demo)
+
+
 # --------------------------------------------------------------------------------------------
 # parser
 
@@ -550,6 +632,7 @@ def build_parser() -> argparse.ArgumentParser:
     p.set_defaults(func=_cmd_score)
 
     _add_pooling_commands(sub)
+    _add_weekly_commands(sub)
     return parser
 
 

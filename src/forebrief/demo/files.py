@@ -2,6 +2,7 @@
 
 Layout under the output folder::
 
+    forebrief.toml                         the configuration of the weekly run
     observations.csv                       every published vintage
     scenario.json                          names, populations, thresholds, teams, season
     submissions/<model>/<issued>.csv       one forecast file per team and issue date
@@ -12,6 +13,7 @@ from __future__ import annotations
 import json
 from pathlib import Path
 
+from forebrief.demo.config_text import config_toml
 from forebrief.demo.csvtext import forecast_csv_texts, observations_csv_text
 from forebrief.demo.scenario import DEFAULT_SEED, Scenario, generate_scenario
 
@@ -21,6 +23,7 @@ __all__ = ["regenerate_example_inputs", "scenario_files", "write_scenario"]
 def scenario_files(scenario: Scenario) -> dict[str, bytes]:
     """Every file of the scenario as {relative POSIX path: exact bytes}, sorted by path."""
     files: dict[str, bytes] = {
+        "forebrief.toml": config_toml(scenario.meta).encode("utf-8"),
         "observations.csv": observations_csv_text(scenario.observations).encode("utf-8"),
         "scenario.json": (json.dumps(scenario.meta, indent=2, ensure_ascii=True) + "\n").encode(
             "utf-8"

@@ -91,7 +91,7 @@ REGIONS: tuple[RegionSpec, ...] = (
     RegionSpec("velvetmoss", "Velvetmoss", 690_000),
 )
 TOTAL_REGION = RegionSpec(
-    "kestrelmark", "Kestrelmark (All Regions)", sum(r.population for r in REGIONS)
+    "kestrelmark", "Kestrelmark (all regions)", sum(r.population for r in REGIONS)
 )
 
 _QUANTITY_META: tuple[dict[str, str], ...] = (
@@ -608,7 +608,7 @@ def generate_scenario(*, seed: int = DEFAULT_SEED) -> Scenario:
         "note": "Entirely invented demo scenario; any likeness to real places, agencies, "
         "teams or outbreaks is accidental.",
         "seed": seed,
-        "jurisdiction": {"name": JURISDICTION_NAME},
+        "jurisdiction": {"name": JURISDICTION_NAME, "short_name": "Kestrelmark"},
         "total_region": TOTAL_REGION.id,
         "regions": [
             {"id": s.id, "name": s.name, "population": s.population}

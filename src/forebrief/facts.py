@@ -1,0 +1,837 @@
+"""BriefingFacts: everything a reader will see, computed, rounded and labelled here.
+
+The narrative and the templates only place these values; they do no arithmetic. Every number
+is stored both as a number (for tables and charts) and, where a sentence uses it, as the exact
+text that the sentence prints, so a test can check each sentence's numbers against the facts.
+
+Wording follows published guidance on communicating uncertainty: give the probability as a
+number or a frequency ("a 9 in 10 chance"), not a bare verbal term (Spiegelhalter 2017, Annu.
+Rev. Stat. Appl. 4:31-60; Budescu et al. 2014, Nat. Clim. Change 4:508-512); where a verbal term
+is used it follows the IPCC calibrated scale with its number beside it (Mastrandrea et al. 2010,
+IPCC AR5 guidance note). A 50% range is never called "likely" (IPCC: likely means >= 66%).
+"""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Mapping, Sequence
+from dataclasses import asdict, dataclass, field
+from typing import Any
+
+import numpy as np
+import pandas as pd
+from scipy.stats import binomtest
+
+from forebrief.config import BriefingConfig
+from forebrief.distributions import pool_cdf
+from forebrief.schema import cm_probabilities
+from forebrief.scoring.classical import calibration_score
+
+__all__ = [
+    "CAUTIONS",
+    "BriefingFacts",
+    "ModelVerdict",
+    "OutlookRow",
+    "build_facts",
+    "chance_text",
+    "format_count",
+    "verdict_from_bins",
+]
+
+#: The standard cautions printed in every briefing (sources in CONVENTIONS section 4).
+CAUTIONS: tuple[str, ...] = (
+    "Forecasts more than one or two weeks ahead are much less reliable than near-term ones; "
+    "treat the three- and four-week outlook as a rough guide only.",
+    "A forecast assumes that current conditions continue; it is not a scenario of what a "
+    "policy change would do.",
+    "The latest weeks of data are provisional: reporting delays mean they are often revised "
+    "upward, so the most recent counts may rise.",
+    "The models do not always agree; where they disagree the combined range is wider, and "
+    "where one model carries most of the weight the combined forecast depends on it.",
+    "A well-calibrated 90% range still misses about 1 week in 10.",
+    "This briefing informs decisions; it does not make them. Local public-health authority "
+    "and professional judgment come first.",
+)
+
+
+# --------------------------------------------------------------------------------------------
+# formatting (every number a reader sees is formatted here)
+
+
+def round_count(x: float) -> float:
+    """Weekly counts: whole numbers; from 1,000 up, the nearest 10 (common practice, no source)."""
+    if not math.isfinite(x):
+        return x
+    return float(round(x, -1) if abs(x) >= 1000 else round(x))
+
+
+def format_count(x: float) -> str:
+    """A rounded count with a thousands separator, e.g. 1,240."""
+    if not math.isfinite(x):
+        return "n/a"
+    return f"{round_count(x):,.0f}"
+
+
+def format_rate(x: float) -> str:
+    """A rate per 100,000 with one decimal."""
+    return "n/a" if not math.isfinite(x) else f"{x:,.1f}"
+
+
+def round_probability(p: float) -> float:
+    """Probabilities to the nearest 5 percentage points, kept inside [0.01, 0.99]."""
+    if not math.isfinite(p):
+        return p
+    r = round(p * 20) / 20
+    return min(max(r, 0.01), 0.99) if 0 < p < 1 else r
+
+
+def chance_text(p: float) -> str:
+    """A probability as a frequency a lay reader can use: 'about 7 in 10'.
+
+    Tenths, as in Spiegelhalter (2017); below 1 in 20 and above 19 in 20 the text says so
+    rather than rounding to "0 in 10" or "10 in 10".
+    """
+    if not math.isfinite(p):
+        return "unknown"
+    if p < 0.05:
+        return "less than 1 in 20"
+    if p > 0.95:
+        return "more than 19 in 20"
+    if p < 0.15:
+        return "about 1 in 10" if p >= 0.075 else "about 1 in 20"
+    if p > 0.85:
+        return "about 9 in 10" if p <= 0.925 else "about 19 in 20"
+    return f"about {int(round(p * 10))} in 10"
+
+
+def percent_text(p: float) -> str:
+    if not math.isfinite(p):
+        return "n/a"
+    if p < 0.05:
+        return "under 5%"
+    if p > 0.95:
+        return "over 95%"
+    return f"{round_probability(p) * 100:.0f}%"
+
+
+# --------------------------------------------------------------------------------------------
+# the facts
+
+
+@dataclass(frozen=True)
+class OutlookRow:
+    """The weighted pool's outlook for one region, quantity and horizon."""
+
+    region: str
+    region_name: str
+    is_total: bool
+    quantity: str
+    quantity_name: str
+    unit: str
+    horizon: int
+    week_ending: str
+    week_ending_text: str
+    median: float
+    median_text: str
+    range50: tuple[float, float]
+    range50_text: str
+    range50_low_text: str
+    range50_high_text: str
+    range90: tuple[float, float]
+    range90_text: str
+    range90_low_text: str
+    range90_high_text: str
+    below_text: str
+    above_text: str
+    last_value: float
+    last_value_text: str
+    last_week: str
+    last_week_text: str
+    last_provisional: bool
+    change: float
+    change_text: str
+    change_percent: float | None
+    direction: str
+    p_above_last: float
+    p_above_last_text: str
+    threshold: float | None
+    threshold_text: str | None
+    threshold_label: str | None
+    p_above_threshold: float | None
+    p_above_threshold_text: str | None
+    median_rate: float | None
+    median_rate_text: str | None
+    range90_rate_text: str | None
+    width90_relative: float
+    width90_relative_text: str
+    member_spread_ratio: float | None
+    agreement: str
+    dominant_model: str | None
+    n_members: int
+    baseline_median: float | None
+
+
+@dataclass(frozen=True)
+class ModelVerdict:
+    """A plain verdict on one model for one quantity, with the numbers behind it."""
+
+    model: str
+    quantity: str
+    quantity_name: str
+    verdict: str
+    explanation: str
+    n_items: int
+    calibration: float | None
+    information: float | None
+    weight: float
+    weight_text: str
+    relative_wis: float | None
+    relative_wis_text: str
+    outside_90: int
+    expected_outside_90: float
+    below_median: int
+    bins: tuple[int, ...]
+
+
+@dataclass(frozen=True)
+class TrackRow:
+    """How one method did over the back-test, for one quantity and horizon."""
+
+    method: str
+    label: str
+    quantity: str
+    horizon: int
+    n_items: int
+    relative_wis: float | None
+    relative_wis_text: str
+    vs_baseline_text: str
+    in_50: int
+    in_90: int
+    in_50_text: str
+    in_90_text: str
+
+
+@dataclass(frozen=True)
+class BriefingFacts:
+    """Everything the briefing shows, as computed, rounded and labelled values."""
+
+    title: str
+    audience: str
+    jurisdiction: str
+    contact: str
+    issued: str
+    issued_text: str
+    data_as_of: str
+    data_as_of_text: str
+    history_as_of: str | None
+    tool_version: str
+    horizons: tuple[int, ...]
+    quantities: tuple[Mapping[str, str], ...]
+    regions: tuple[Mapping[str, Any], ...]
+    total_region: str | None
+    total_available: bool
+    total_note: str
+    outlook: tuple[OutlookRow, ...]
+    verdicts: tuple[ModelVerdict, ...]
+    track: tuple[TrackRow, ...]
+    track_weeks: int
+    track_total: tuple[Mapping[str, Any], ...]
+    calibration_by_region: tuple[Mapping[str, Any], ...]
+    weights: tuple[Mapping[str, Any], ...]
+    alpha: tuple[Mapping[str, Any], ...]
+    changes: Mapping[str, Any]
+    data_notes: Mapping[str, Any]
+    summary: Mapping[str, Any] = field(default_factory=dict)
+    cautions: tuple[str, ...] = CAUTIONS
+    methods: Mapping[str, Any] = field(default_factory=dict)
+    history: Mapping[str, Any] = field(default_factory=dict)
+
+    def to_dict(self) -> dict[str, Any]:
+        return asdict(self)
+
+
+# --------------------------------------------------------------------------------------------
+# verdicts
+
+
+VERDICTS = ("reliable", "overconfident", "underconfident", "biased high", "biased low",
+            "unreliable", "not yet rated")
+
+
+def verdict_from_bins(bins: Sequence[int], *, passes: bool, rated: bool,
+                      test_level: float = 0.05) -> tuple[str, str]:
+    """A plain verdict from a model's calibration test and its Classical Model bin counts.
+
+    Bins are the six interquantile bins of the 5/25/50/75/95% quantiles (expected shares
+    5/20/25/25/20/5%). Rules (our design, each a one-sided or two-sided binomial test at
+    ``test_level``, common practice, no source):
+
+    - not yet rated: too little history;
+    - reliable: passes the calibration cutoff;
+    - biased high / low: observations fall below / above its median significantly more
+      often than half the time (the forecasts sit too high / too low);
+    - overconfident: more observations than the expected 10% fall outside its 90% range;
+    - underconfident: fewer than 10% fall outside its 90% range, or more than half inside the
+      50% range (its ranges are wider than they need to be);
+    - when several patterns are significant, the clearest (smallest p-value) is named;
+    - unreliable: fails the test without one of these clear patterns.
+    """
+    b = np.asarray(bins, dtype=int)
+    n = int(b.sum())
+    if not rated or n == 0:
+        return "not yet rated", "too little history to judge yet"
+    outside = int(b[0] + b[-1])
+    below = int(b[: b.size // 2].sum())
+    central = int(b[b.size // 2 - 1 : b.size // 2 + 1].sum())
+    if passes:
+        return "reliable", (f"its ranges held about as often as they should: {outside} of {n} "
+                            f"observations fell outside its 90% range (about {0.1 * n:.0f} "
+                            "expected)")
+    # the clearest of the three patterns (smallest p-value) names the failure
+    p_bias = binomtest(below, n, 0.5).pvalue
+    p_over = binomtest(outside, n, 0.1, alternative="greater").pvalue
+    p_under = min(binomtest(outside, n, 0.1, alternative="less").pvalue,
+                  binomtest(central, n, 0.5, alternative="greater").pvalue)
+    best = min((p_bias, 0), (p_over, 1), (p_under, 2))
+    if best[0] < test_level:
+        if best[1] == 0 and below > n - below:
+            return "biased high", (f"its forecasts sat too high: {below} of {n} observations "
+                                   "fell below its median")
+        if best[1] == 0:
+            return "biased low", (f"its forecasts sat too low: {n - below} of {n} "
+                                  "observations fell above its median")
+        if best[1] == 1:
+            return "overconfident", (f"its ranges were too narrow: {outside} of {n} "
+                                     "observations fell outside its 90% range (about "
+                                     f"{0.1 * n:.0f} expected)")
+        return "underconfident", (f"its ranges were wider than needed: {central} of {n} "
+                                  "observations fell inside its 50% range (about "
+                                  f"{0.5 * n:.0f} expected)")
+    return "unreliable", "its ranges did not hold as often as they should, with no single pattern"
+
+
+# --------------------------------------------------------------------------------------------
+# building
+
+
+def _date(d: Any) -> str:
+    return "" if d is None or pd.isna(d) else pd.Timestamp(d).strftime("%Y-%m-%d")
+
+
+def date_text(d: Any) -> str:
+    """A date as a reader says it: '5 December 2026'."""
+    if d is None or (not isinstance(d, str) and pd.isna(d)) or d == "":
+        return ""
+    t = pd.Timestamp(d)
+    return f"{t.day} {t:%B %Y}"
+
+
+def _range_text(lo: float, hi: float) -> str:
+    return f"{format_count(lo)} to {format_count(hi)}"
+
+
+def _pct_off(value: float, centre: float, side: str) -> str:
+    if centre <= 0 or not math.isfinite(value):
+        return "n/a"
+    return f"{abs(value - centre) / centre * 100:.0f}% {side}"
+
+
+def _outlook(cfg: BriefingConfig, ensemble: Any, last_obs: pd.DataFrame,
+             provisional_weeks: set[tuple[str, str, pd.Timestamp]],
+             baseline_medians: Mapping[tuple[str, str, pd.Timestamp], float]) -> list[OutlookRow]:
+    e = ensemble.ensemble
+    wp = e.loc[e["method"] == "weighted_pool"]
+    wide = wp.pivot_table(index=["region", "quantity", "week_ending", "horizon"],
+                          columns="level", values="value", aggfunc="first")
+    need = [0.05, 0.25, 0.5, 0.75, 0.95]
+    cols = {t: next((c for c in wide.columns if abs(c - t) < 1e-6), None) for t in need}
+    if any(v is None for v in cols.values()):
+        return []
+    wide = wide.reset_index()
+    wide = wide.loc[wide["horizon"].isin(cfg.horizons)]
+    pool = ensemble.pool
+    # exceedance probabilities from the pooled CDF (exact mixture), one evaluation per item
+    key = {tuple(r): i for i, r in enumerate(
+        pool.items[["region", "quantity", "week_ending", "horizon"]].itertuples(
+            index=False, name=None))}
+    idx = np.array([key[(r.region, r.quantity, r.week_ending, r.horizon)]
+                    for r in wide.itertuples(index=False)], dtype=np.int64)
+    last_map = {(r.region, r.quantity): (float(r.value), pd.Timestamp(r.week_ending))
+                for r in last_obs.itertuples(index=False)}
+    last_vals = np.array([last_map.get((r.region, r.quantity), (np.nan, None))[0]
+                          for r in wide.itertuples(index=False)])
+    thr = [cfg.threshold(r.region, r.quantity) for r in wide.itertuples(index=False)]
+    thr_vals = np.array([t.value if t else np.nan for t in thr])
+    x = np.column_stack([np.nan_to_num(last_vals, nan=0.0), np.nan_to_num(thr_vals, nan=0.0)])
+    if idx.size:
+        f = pool_cdf(x, pool.values[idx], pool.levels, pool.weights[idx], pool.lower[idx],
+                     pool.upper[idx])
+    else:
+        f = np.zeros((0, 2))
+    members = ~np.isnan(pool.values).all(axis=2)
+    rob = ensemble.robustness
+    rows = []
+    for j, r in enumerate(wide.itertuples(index=False)):
+        q = {t: float(wide.iloc[j][cols[t]]) for t in need}
+        med = round_count(q[0.5])
+        lo50, hi50 = round_count(q[0.25]), round_count(q[0.75])
+        lo90, hi90 = round_count(q[0.05]), round_count(q[0.95])
+        last, last_week = last_map.get((r.region, r.quantity), (math.nan, None))
+        change = med - round_count(last) if math.isfinite(last) else math.nan
+        pct = (change / round_count(last) * 100) if math.isfinite(last) and last > 0 else None
+        if not math.isfinite(change):
+            direction = "unknown"
+        elif pct is not None and abs(pct) < 5:
+            direction = "about the same"
+        else:
+            direction = "up" if change > 0 else ("down" if change < 0 else "about the same")
+        p_last = 1.0 - float(f[j, 0]) if math.isfinite(last) else math.nan
+        t = thr[j]
+        p_thr = (1.0 - float(f[j, 1])) if t is not None else None
+        info = cfg.quantity_info(r.quantity)
+        region_info = cfg.regions.get(r.region)
+        pop = region_info.population if region_info else None
+        rate = (q[0.5] / pop * 1e5) if pop else None
+        width_rel = (q[0.95] - q[0.05]) / q[0.5] if q[0.5] > 0 else math.inf
+        i = idx[j]
+        present = members[i]
+        med_members = pool.values[i][present][:, _level_col(pool.levels, 0.5)]
+        spread = (float(np.nanmax(med_members) - np.nanmin(med_members))
+                  if med_members.size > 1 else 0.0)
+        width = q[0.95] - q[0.05]
+        ratio = spread / width if width > 0 else None
+        agreement = ("the models broadly agree" if ratio is None or ratio <= 0.5 else
+                     "the models disagree" if ratio > 1.0 else "the models differ somewhat")
+        sub = rob.loc[(rob["region"] == r.region) & (rob["quantity"] == r.quantity)
+                      & (rob["week_ending"] == r.week_ending) & (rob["horizon"] == r.horizon)]
+        dominant = None
+        if not sub.empty:
+            top = sub.sort_values("weight", ascending=False).iloc[0]
+            shift = abs(top["median_change"]) / q[0.5] if q[0.5] > 0 else 0.0
+            if top["weight"] >= 0.5 and shift >= 0.10:
+                dominant = str(top["left_out"])
+        rows.append(OutlookRow(
+            region=r.region, region_name=cfg.region_name(r.region),
+            is_total=(r.region == cfg.total_region), quantity=r.quantity,
+            quantity_name=info.name, unit=info.unit, horizon=int(r.horizon),
+            week_ending=_date(r.week_ending), week_ending_text=date_text(r.week_ending),
+            median=med, median_text=format_count(med),
+            range50=(lo50, hi50), range50_text=_range_text(lo50, hi50),
+            range50_low_text=format_count(lo50), range50_high_text=format_count(hi50),
+            range90=(lo90, hi90), range90_text=_range_text(lo90, hi90),
+            range90_low_text=format_count(lo90), range90_high_text=format_count(hi90),
+            below_text=_pct_off(lo90, med, "below"), above_text=_pct_off(hi90, med, "above"),
+            last_value=round_count(last) if math.isfinite(last) else math.nan,
+            last_value_text=format_count(last), last_week=_date(last_week),
+            last_week_text=date_text(last_week), last_provisional=(r.region, r.quantity, last_week) in provisional_weeks,
+            change=change, change_text=format_count(abs(change)) if math.isfinite(change) else
+            "n/a",
+            change_percent=None if pct is None else round(pct),
+            direction=direction, p_above_last=round_probability(p_last),
+            p_above_last_text=chance_text(p_last),
+            threshold=None if t is None else t.value,
+            threshold_text=None if t is None else format_count(t.value),
+            threshold_label=None if t is None else t.label,
+            p_above_threshold=None if p_thr is None else round_probability(p_thr),
+            p_above_threshold_text=None if p_thr is None else chance_text(p_thr),
+            median_rate=None if rate is None else round(rate, 1),
+            median_rate_text=None if rate is None else format_rate(rate),
+            range90_rate_text=None if not pop else
+            f"{format_rate(q[0.05] / pop * 1e5)} to {format_rate(q[0.95] / pop * 1e5)}",
+            width90_relative=round(width_rel, 2) if math.isfinite(width_rel) else width_rel,
+            width90_relative_text=f"{width_rel * 100:.0f}%" if math.isfinite(width_rel)
+            else "n/a",
+            member_spread_ratio=None if ratio is None else round(ratio, 2),
+            agreement=agreement, dominant_model=dominant, n_members=int(present.sum()),
+            baseline_median=baseline_medians.get((r.region, r.quantity, r.week_ending)),
+        ))
+    rows.sort(key=lambda o: (not o.is_total, o.quantity, o.region_name, o.horizon))
+    return rows
+
+
+def _level_col(levels: np.ndarray, t: float) -> int:
+    return int(np.flatnonzero(np.abs(levels - t) < 1e-6)[0])
+
+
+def _verdicts(cfg: BriefingConfig, scores: pd.DataFrame, weights: pd.DataFrame,
+              relative: pd.DataFrame, *, test_level: float) -> list[ModelVerdict]:
+    """One verdict per (model, quantity), from bin counts pooled over the horizons shown."""
+    if scores.empty:
+        return []
+    s = scores.loc[scores["horizon"].isin(cfg.horizons)]
+    bins_cols = [c for c in s.columns if c.startswith("bin_")]
+    p = cm_probabilities(cfg.levels)
+    out = []
+    members = set(weights["model"])
+    for (model, quantity), part in s.groupby(["model", "quantity"], sort=True):
+        if model not in members:
+            continue
+        counts = part[bins_cols].sum().to_numpy(dtype=int)
+        n = int(counts.sum())
+        cal = float(calibration_score(counts, p, power=cfg.power)) if n else math.nan
+        rated = n >= cfg.min_items * len(part)
+        passes = bool(math.isfinite(cal) and cal >= test_level)
+        verdict, why = verdict_from_bins(counts, passes=passes, rated=rated,
+                                         test_level=test_level)
+        w = weights.loc[(weights["model"] == model) & (weights["quantity"] == quantity)
+                        & (weights["horizon"] == min(cfg.horizons)), "weight"]
+        weight = float(w.iloc[0]) if len(w) else 0.0
+        rel = relative.loc[(relative["model"] == model) & (relative["quantity"] == quantity)
+                           & (relative["horizon"] == min(cfg.horizons)), "relative_wis"]
+        rel_v = float(rel.iloc[0]) if len(rel) and pd.notna(rel.iloc[0]) else None
+        info = part["information"].mean()
+        out.append(ModelVerdict(
+            model=str(model), quantity=str(quantity),
+            quantity_name=cfg.quantity_info(quantity).name, verdict=verdict, explanation=why,
+            n_items=n, calibration=None if not math.isfinite(cal) else float(f"{cal:.3g}"),
+            information=None if pd.isna(info) else round(float(info), 2),
+            weight=round(weight, 2), weight_text=f"{weight:.2f}",
+            relative_wis=None if rel_v is None else round(rel_v, 2),
+            relative_wis_text="n/a" if rel_v is None else f"{rel_v:.2f}",
+            outside_90=int(counts[0] + counts[-1]), expected_outside_90=round(0.1 * n, 1),
+            below_median=int(counts[: counts.size // 2].sum()),
+            bins=tuple(int(c) for c in counts),
+        ))
+    order = {v: i for i, v in enumerate(VERDICTS)}
+    out.sort(key=lambda v: (v.quantity, order[v.verdict], -v.weight, v.model))
+    return out
+
+
+METHOD_LABELS = {
+    "weighted_pool": "combined forecast (reliability-weighted)",
+    "equal_pool": "combined forecast (equal weights)",
+    "quantile_median": "median of the models",
+}
+
+
+def _track(cfg: BriefingConfig, backtest: Any) -> tuple[list[TrackRow], list[dict[str, Any]],
+                                                        list[dict[str, Any]]]:
+    if backtest is None:
+        return [], [], []
+    s = backtest.scores
+    items = backtest.by_item
+    rows = []
+    base = backtest.baseline
+    for r in s.loc[s["kind"].isin(["ensemble", "baseline"])
+                   & s["horizon"].isin(cfg.horizons)].itertuples(index=False):
+        sub = items.loc[(items["model"] == r.model) & (items["quantity"] == r.quantity)
+                        & (items["horizon"] == r.horizon)]
+        n50 = int(sub["in_50"].sum()) if "in_50" in sub else 0
+        n90 = int(sub["in_90"].sum()) if "in_90" in sub else 0
+        n = int(sub["in_90"].notna().sum())
+        rel = None if pd.isna(r.relative_wis) else float(r.relative_wis)
+        if rel is None:
+            vs = "could not be compared with the baseline"
+        elif abs(rel - 1) < 0.005:
+            vs = "about as accurate as the baseline"
+        elif rel < 1:
+            vs = f"{(1 - rel) * 100:.0f}% smaller error than the baseline"
+        else:
+            vs = f"{(rel - 1) * 100:.0f}% larger error than the baseline"
+        rows.append(TrackRow(
+            method=str(r.model),
+            label=METHOD_LABELS.get(str(r.model), "same as last week (baseline)"
+                                    if r.model == base else str(r.model)),
+            quantity=str(r.quantity), horizon=int(r.horizon), n_items=n,
+            relative_wis=None if rel is None else round(rel, 2),
+            relative_wis_text="n/a" if rel is None else f"{rel:.2f}",
+            vs_baseline_text=vs, in_50=n50, in_90=n90, in_50_text=f"{n50} of {n}", in_90_text=f"{n90} of {n}",
+        ))
+    # the jurisdiction total, week by week, for the weighted pool one week ahead
+    total_rows: list[dict[str, Any]] = []
+    h1 = min(cfg.horizons)
+    if cfg.total_region:
+        sub = items.loc[(items["model"] == "weighted_pool") & (items["region"] ==
+                                                              cfg.total_region)
+                        & (items["horizon"] == h1)]
+        for q, part in sub.groupby("quantity", sort=True):
+            n = int(part["in_90"].notna().sum())
+            total_rows.append({
+                "quantity": q, "quantity_name": cfg.quantity_info(q).name, "horizon": h1,
+                "weeks": n, "in_90": int(part["in_90"].sum()), "in_50": int(part["in_50"].sum()),
+                "in_90_text": f"in {int(part['in_90'].sum())} of the last {n} weeks",
+                "in_50_text": f"in {int(part['in_50'].sum())} of the last {n} weeks",
+            })
+    # calibration of the weighted pool by region (bins pooled over the horizons shown)
+    by_region: list[dict[str, Any]] = []
+    wp = items.loc[(items["model"] == "weighted_pool") & items["horizon"].isin(cfg.horizons)
+                   & items["bin"].notna()]
+    p = cm_probabilities(cfg.levels)
+    for (q, region), part in wp.groupby(["quantity", "region"], sort=True):
+        passed = 0
+        horizons = sorted(part["horizon"].unique())
+        for _, hp in part.groupby("horizon"):
+            counts = np.bincount(hp["bin"].astype(int).to_numpy(), minlength=p.size)
+            if float(calibration_score(counts, p, power=cfg.power)) >= 0.05:
+                passed += 1
+        by_region.append({
+            "quantity": q, "region": region, "region_name": cfg.region_name(region),
+            "horizons_passed": passed, "horizons": len(horizons),
+            "text": f"passes at {passed} of {len(horizons)} horizons",
+        })
+    return rows, total_rows, by_region
+
+
+def build_facts(
+    *,
+    cfg: BriefingConfig,
+    issued: pd.Timestamp,
+    tool_version: str,
+    observations: pd.DataFrame,
+    forecasts: pd.DataFrame,
+    scores: Any,
+    ensemble: Any,
+    backtest: Any,
+    excluded: pd.DataFrame,
+    previous: Mapping[str, Any] | None,
+    revisions: pd.DataFrame,
+    test_level: float = 0.05,
+) -> BriefingFacts:
+    """Compute every fact of the briefing for issue date ``issued``.
+
+    ``observations`` are the validated observations (all vintages); only those known on the
+    issue date are used. ``scores`` is the history scoring behind the weights (with the
+    baseline, for relative WIS), ``ensemble`` the result of
+    :func:`forebrief.ensemble.build_ensemble`, ``backtest`` that of
+    :func:`forebrief.backtest.backtest` (or None), ``previous`` the last record's facts.
+    """
+    from forebrief.ensemble import known_on
+
+    known = known_on(observations, issued)
+    last_obs = known.sort_values("week_ending").groupby(["region", "quantity"]).tail(1)
+    # provisional: weeks whose latest known value was first reported within 3 weeks of D
+    provisional: set[tuple[str, str, pd.Timestamp]] = set()
+    if "reported" in observations and observations["reported"].notna().any():
+        recent = observations.loc[(observations["reported"] <= issued)
+                                  & (observations["week_ending"] >= issued -
+                                     pd.Timedelta(days=21))]
+        provisional = {(r.region, r.quantity, pd.Timestamp(r.week_ending))
+                       for r in recent.itertuples(index=False)}
+    base = forecasts.loc[(forecasts["model"] == cfg.baseline) & (forecasts["issued"] == issued)
+                         & (np.abs(forecasts["level"] - 0.5) < 1e-6)]
+    baseline_medians = {(r.region, r.quantity, r.week_ending): round_count(float(r.value))
+                        for r in base.itertuples(index=False)}
+    outlook = _outlook(cfg, ensemble, last_obs, provisional, baseline_medians)
+    total_available = bool(cfg.total_region) and any(o.is_total for o in outlook)
+    if total_available:
+        total_note = (f"The jurisdiction-wide figures are the models' own forecasts for "
+                      f"{cfg.region_name(cfg.total_region or '')}; regional forecasts are "
+                      "not added up, because ranges of forecasts do not add.")
+    else:
+        total_note = ("No jurisdiction-wide total is available: no region is configured as the "
+                      "whole jurisdiction (or it has no forecasts), and regional ranges cannot "
+                      "simply be added up.")
+    by_model = scores.by_model if scores is not None else pd.DataFrame()
+    verdicts = _verdicts(cfg, by_model, ensemble.weights, by_model, test_level=test_level)
+    track, track_total, cal_region = _track(cfg, backtest)
+    weights = [
+        {"model": r.model, "quantity": r.quantity, "horizon": int(r.horizon),
+         "weight": round(float(r.weight), 3), "rated": bool(r.rated), "status": r.status}
+        for r in ensemble.weights.itertuples(index=False)
+    ]
+    alpha = [
+        {"quantity": g["quantity"], "horizon": g["horizon"], "alpha": g["alpha"],
+         "mode": g["alpha_mode"], "fallback": g["equal_weight_fallback"],
+         "pool_calibration": g["pool_calibration"], "pool_information": g["pool_information"]}
+        for g in ensemble.summary["groups"]
+    ]
+    changes = _changes(outlook, verdicts, weights, previous, cfg)
+    data_notes = _data_notes(cfg, issued, forecasts, excluded, revisions, known)
+    data_as_of = _date(known["week_ending"].max()) if not known.empty else ""
+    summary = _summary(cfg, outlook, verdicts, track)
+    history = _history(cfg, known, provisional, weeks=max(cfg.window, 16))
+    return BriefingFacts(
+        title=cfg.title, audience=cfg.audience, jurisdiction=cfg.jurisdiction,
+        contact=cfg.contact, issued=_date(issued), issued_text=date_text(issued),
+        data_as_of=data_as_of, data_as_of_text=date_text(data_as_of),
+        history_as_of=ensemble.summary.get("history_as_of"), tool_version=tool_version,
+        horizons=tuple(cfg.horizons),
+        quantities=tuple({"id": q, "name": cfg.quantity_info(q).name,
+                          "unit": cfg.quantity_info(q).unit}
+                         for q in sorted({o.quantity for o in outlook})),
+        regions=tuple({"id": r, "name": cfg.region_name(r),
+                       "is_total": r == cfg.total_region}
+                      for r in sorted({o.region for o in outlook},
+                                      key=lambda x: (x != cfg.total_region,
+                                                     cfg.region_name(x)))),
+        total_region=cfg.total_region, total_available=total_available, total_note=total_note,
+        outlook=tuple(outlook), verdicts=tuple(verdicts), track=tuple(track),
+        track_weeks=len(backtest.issue_dates) if backtest is not None else 0,
+        track_total=tuple(track_total), calibration_by_region=tuple(cal_region),
+        weights=tuple(weights), alpha=tuple(alpha), changes=changes, data_notes=data_notes,
+        summary=summary, history=history,
+        methods={
+            "window_weeks": cfg.window, "alpha": cfg.alpha, "levels": list(cfg.levels),
+            "overshoot": cfg.overshoot, "min_items": cfg.min_items, "power": cfg.power,
+            "background": cfg.background, "baseline": cfg.baseline,
+            "verdict_test_level": test_level,
+        },
+    )
+
+
+def _changes(outlook: Sequence[OutlookRow], verdicts: Sequence[ModelVerdict],
+             weights: Sequence[Mapping[str, Any]],
+             previous: Mapping[str, Any] | None, cfg: BriefingConfig) -> dict[str, Any]:
+    """What changed since the last record: outlook revisions, verdicts, weights."""
+
+    def cfg_name(q: str) -> str:
+        return cfg.quantity_info(q).name
+
+    if not previous:
+        return {"previous_issued": None, "outlook": [], "verdicts": [], "weights": []}
+    prev_rows = {(o["region"], o["quantity"], o["week_ending"]): o
+                 for o in previous.get("outlook", [])}
+    outlook_changes = []
+    first = min((o.horizon for o in outlook), default=1)
+    for o in outlook:
+        p = prev_rows.get((o.region, o.quantity, o.week_ending))
+        if p is None or o.horizon != first:
+            continue
+        diff = o.median - float(p["median"])
+        if p["median"] and abs(diff) / max(float(p["median"]), 1.0) >= 0.05:
+            outlook_changes.append({
+                "region": o.region, "region_name": o.region_name, "quantity": o.quantity,
+                "quantity_name": o.quantity_name, "week_ending": o.week_ending,
+                "week_ending_text": o.week_ending_text, "horizon": o.horizon, "before": float(p["median"]),
+                "before_text": format_count(float(p["median"])), "now": o.median,
+                "now_text": o.median_text, "direction": "up" if diff > 0 else "down",
+            })
+    prev_verdicts = {(v["model"], v["quantity"]): v["verdict"]
+                     for v in previous.get("verdicts", [])}
+    verdict_changes = []
+    for v in verdicts:
+        before = prev_verdicts.get((v.model, v.quantity))
+        if before is not None and (before == "reliable") != (v.verdict == "reliable"):
+            verdict_changes.append({"model": v.model, "quantity": v.quantity,
+                                    "quantity_name": v.quantity_name, "before": before,
+                                    "now": v.verdict})
+    prev_w = {(w["model"], w["quantity"], w["horizon"]): w["weight"]
+              for w in previous.get("weights", [])}
+    moves = []
+    for w in weights:
+        before = prev_w.get((w["model"], w["quantity"], w["horizon"]), 0.0)
+        delta = w["weight"] - before
+        if abs(delta) >= 0.1:
+            moves.append({**w, "quantity_name": cfg_name(w["quantity"]), "before": before,
+                          "change": round(delta, 2),
+                          "before_text": f"{before:.2f}", "now_text": f"{w['weight']:.2f}"})
+    moves.sort(key=lambda m: -abs(m["change"]))
+    return {"previous_issued": previous.get("issued"),
+            "previous_issued_text": date_text(previous.get("issued")),
+            "outlook": outlook_changes,
+            "verdicts": verdict_changes, "weights": moves[:6]}
+
+
+def _data_notes(cfg: BriefingConfig, issued: pd.Timestamp, forecasts: pd.DataFrame,
+                excluded: pd.DataFrame, revisions: pd.DataFrame,
+                known: pd.DataFrame) -> dict[str, Any]:
+    quarantined = []
+    if not excluded.empty:
+        for (kind, file, model), part in excluded.groupby(["kind", "file", "model"], sort=True):
+            reasons = sorted({r.split(" (")[0] for r in part["reason"]})
+            short = "/".join(str(file).replace("\\", "/").split("/")[-2:])
+            quarantined.append({"kind": kind, "file": short, "model": model,
+                                "count": len(part), "reasons": reasons})
+    members = forecasts.loc[forecasts["model"] != cfg.baseline]
+    recent_dates = sorted(d for d in members["issued"].unique() if d < issued)[-4:]
+    recent = set(members.loc[members["issued"].isin(recent_dates), "model"])
+    today = set(members.loc[members["issued"] == issued, "model"])
+    missing = sorted(recent - today)
+    new = sorted(today - set(members.loc[members["issued"] < issued, "model"]))
+    revised = []
+    if not revisions.empty:
+        for r in revisions.itertuples(index=False):
+            revised.append({
+                "region": r.region, "region_name": cfg.region_name(r.region),
+                "quantity": r.quantity, "week_ending": _date(r.week_ending),
+                "before": float(r.value_then), "now": float(r.value_now),
+                "before_text": format_count(float(r.value_then)),
+                "now_text": format_count(float(r.value_now)),
+                "direction": "up" if r.change > 0 else "down",
+            })
+    weeks = known.groupby(["region", "quantity"]).size()
+    short = [{"region": r, "region_name": cfg.region_name(r), "quantity": q, "weeks": int(n)}
+             for (r, q), n in weeks.items() if n < cfg.window]
+    return {"quarantined": quarantined, "missing_teams": missing, "new_teams": new,
+            "revised": revised, "short_history": short,
+            "n_revised": len(revised),
+            "n_revised_up": sum(1 for r in revised if r["direction"] == "up")}
+
+
+def _summary(cfg: BriefingConfig, outlook: Sequence[OutlookRow],
+             verdicts: Sequence[ModelVerdict], track: Sequence[TrackRow]) -> dict[str, Any]:
+    """The few facts the headline needs, chosen and counted here (not in the narrative)."""
+    quantities = [q for q in cfg.quantities if any(o.quantity == q for o in outlook)] or \
+        sorted({o.quantity for o in outlook})
+    lead_q = quantities[0] if quantities else None
+    h1 = min(cfg.horizons)
+    lead = [o for o in outlook if o.quantity == lead_q and o.horizon == h1]
+    total = next((o for o in lead if o.is_total), None)
+    focus = total
+    if focus is None and lead:
+        focus = max(lead, key=lambda o: o.median)
+    risk = [o for o in outlook if o.quantity == lead_q and o.p_above_threshold is not None
+            and not o.is_total]
+    top_risk = max(risk, key=lambda o: (o.p_above_threshold or 0.0, -o.horizon), default=None)
+    per_q = {}
+    for q in quantities:
+        vs = [v for v in verdicts if v.quantity == q]
+        per_q[q] = {
+            "n_models": len(vs),
+            "n_reliable": sum(v.verdict == "reliable" for v in vs),
+            "reliable": [v.model for v in vs if v.verdict == "reliable"],
+            "n_not_rated": sum(v.verdict == "not yet rated" for v in vs),
+        }
+    track_h1 = {}
+    for q in quantities:
+        rows = {t.method: t for t in track if t.quantity == q and t.horizon == h1}
+        wp = rows.get("weighted_pool")
+        track_h1[q] = None if wp is None else {
+            "relative_wis": wp.relative_wis, "vs_baseline_text": wp.vs_baseline_text,
+            "beats_baseline": wp.relative_wis is not None and wp.relative_wis < 1,
+            "in_90_text": wp.in_90_text, "in_50_text": wp.in_50_text,
+        }
+    dominance: dict[tuple[str, str], list[str]] = {}
+    for o in outlook:
+        if o.dominant_model and o.horizon == h1:
+            dominance.setdefault((o.dominant_model, o.quantity), []).append(o.region_name)
+    dominant = [{"model": m, "quantity": q, "quantity_name": cfg.quantity_info(q).name,
+                 "regions": sorted(rs), "n_regions": len(rs)}
+                for (m, q), rs in sorted(dominance.items())]
+    up = [o for o in lead if o.direction == "up" and not o.is_total]
+    down = [o for o in lead if o.direction == "down" and not o.is_total]
+    return {
+        "lead_quantity": lead_q,
+        "horizon": h1,
+        "focus": None if focus is None else {"region": focus.region,
+                                             "quantity": focus.quantity,
+                                             "horizon": focus.horizon},
+        "top_risk": None if top_risk is None else {"region": top_risk.region,
+                                                   "quantity": top_risk.quantity,
+                                                   "horizon": top_risk.horizon},
+        "models": per_q,
+        "track": track_h1,
+        "dominant": dominant,
+        "n_regions_up": len(up),
+        "n_regions_down": len(down),
+        "n_regions": len([o for o in lead if not o.is_total]),
+    }
+
+
+def _history(cfg: BriefingConfig, known: pd.DataFrame,
+             provisional: set[tuple[str, str, pd.Timestamp]], *, weeks: int) -> dict[str, Any]:
+    """Recent observed weeks per region and quantity, for the charts (as known on the date)."""
+    out: dict[str, Any] = {}
+    if known.empty:
+        return out
+    start = known["week_ending"].max() - pd.Timedelta(days=7 * (weeks - 1))
+    recent = known.loc[known["week_ending"] >= start].sort_values("week_ending")
+    for (region, quantity), part in recent.groupby(["region", "quantity"], sort=True):
+        out[f"{region}|{quantity}"] = {
+            "region": region, "quantity": quantity,
+            "week_ending": [_date(w) for w in part["week_ending"]],
+            "value": [round_count(float(v)) for v in part["value"]],
+            "provisional": [(region, quantity, pd.Timestamp(w)) in provisional
+                            for w in part["week_ending"]],
+        }
+    return out

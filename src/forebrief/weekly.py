@@ -1,0 +1,160 @@
+"""The weekly run: validate -> score -> baseline -> ensembles -> back-test -> facts -> narrative.
+
+Nothing here writes files: :func:`run_briefing` returns every table and text of the record,
+and :mod:`forebrief.archive` writes them. The only observations used are those known on the
+issue date D (weeks ending before D, vintages reported on or before D), so a record can be
+rebuilt later and gives the same answer whatever data arrived afterwards.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Callable, Mapping
+from dataclasses import dataclass
+from typing import Any
+
+import pandas as pd
+
+from forebrief import __version__
+from forebrief.backtest import BacktestResult, backtest, issue_dates_between
+from forebrief.config import BriefingConfig
+from forebrief.ensemble import (
+    EnsembleResult,
+    EnsembleSettings,
+    build_ensemble,
+    history_scores,
+    with_baseline,
+)
+from forebrief.errors import ConfigError
+from forebrief.facts import BriefingFacts, build_facts
+from forebrief.narrative import Narrative, build_narrative, narrative_text
+from forebrief.observations import revisions_between
+from forebrief.scoring.engine import ScoreResult, ScoreSettings, score_forecasts
+from forebrief.workflow import Inputs
+
+__all__ = ["STAGES", "BriefingRun", "known_by", "latest_issue_date", "run_briefing"]
+
+STAGES: tuple[str, ...] = (
+    "reading and checking inputs",
+    "scoring the models",
+    "persistence baseline",
+    "building the ensembles",
+    "back-testing",
+    "facts and narrative",
+    "writing the record",
+)
+
+
+@dataclass(frozen=True)
+class BriefingRun:
+    """Everything one weekly run produced (tables, facts and text), ready to be written."""
+
+    issued: pd.Timestamp
+    config: BriefingConfig
+    inputs: Inputs
+    scores: ScoreResult | None
+    ensemble: EnsembleResult
+    backtest: BacktestResult | None
+    facts: BriefingFacts
+    narrative: Narrative
+    text: str
+    baseline: pd.DataFrame
+    baseline_generated: bool
+
+    def tables(self) -> dict[str, pd.DataFrame]:
+        """The record's tables, by file name."""
+        empty = pd.DataFrame()
+        out = {
+            "scores_by_model.csv": self.scores.by_model if self.scores else empty,
+            "scores_by_model_region.csv": self.scores.by_model_region if self.scores else empty,
+            "scores_by_item.csv": self.scores.by_item if self.scores else empty,
+            "ensemble.csv": self.ensemble.ensemble,
+            "weights.csv": self.ensemble.weights,
+            "robustness.csv": self.ensemble.robustness,
+            "backtest_scores.csv": self.backtest.scores if self.backtest else empty,
+            "weights_history.csv": self.backtest.weights_history if self.backtest else empty,
+            "excluded.csv": self.inputs.excluded,
+        }
+        if self.baseline_generated:
+            out["baseline.csv"] = self.baseline
+        return out
+
+
+def latest_issue_date(forecasts: pd.DataFrame, *, baseline: str | None) -> pd.Timestamp:
+    """The latest issue date among the member forecasts."""
+    f = forecasts if baseline is None else forecasts.loc[forecasts["model"] != baseline]
+    if f.empty:
+        raise ConfigError("the forecasts hold no usable rows, so there is no issue date; fix: "
+                          "run forebrief check on them and correct the errors it lists")
+    return pd.Timestamp(f["issued"].max())
+
+
+def known_by(observations: pd.DataFrame, issued: pd.Timestamp) -> pd.DataFrame:
+    """Every vintage known on ``issued``: weeks ending before it, reported on or before it."""
+    mask = observations["week_ending"] < issued
+    if "reported" in observations and observations["reported"].notna().any():
+        mask &= observations["reported"].isna() | (observations["reported"] <= issued)
+    return observations.loc[mask].reset_index(drop=True)
+
+
+def run_briefing(
+    cfg: BriefingConfig,
+    inputs: Inputs,
+    *,
+    issued: pd.Timestamp | None = None,
+    previous: Mapping[str, Any] | None = None,
+    stage: Callable[[str], None] | None = None,
+) -> BriefingRun:
+    """Run the whole weekly job on validated inputs; returns the record's contents."""
+    step = stage or (lambda _name: None)
+    forecasts = inputs.forecasts.table
+    d = pd.Timestamp(issued) if issued is not None else latest_issue_date(
+        forecasts, baseline=cfg.baseline)
+    obs = known_by(inputs.observations.table, d)
+    settings = EnsembleSettings(
+        window=cfg.window, alpha=cfg.alpha, min_items=cfg.min_items, baseline=cfg.baseline,
+        levels=cfg.levels, overshoot=cfg.overshoot, background=cfg.background,
+        power=cfg.power, signed=cfg.signed,
+    )
+    step("persistence baseline")
+    member_dates = issue_dates_between(forecasts, pd.Timestamp.min, d,
+                                       exclude={cfg.baseline})
+    table, generated = with_baseline(forecasts, obs, issue_dates=member_dates,
+                                     name=cfg.baseline, horizons=cfg.horizons,
+                                     signed=cfg.signed)
+    baseline = table.loc[(table["model"] == cfg.baseline) & (table["issued"] == d)]
+    baseline = baseline.drop(columns=["horizon"], errors="ignore").reset_index(drop=True)
+    step("scoring the models")
+    history = history_scores(table, obs, issued=d, settings=settings)
+    scores = None
+    if history.as_of is not None:
+        alpha = 0.05 if cfg.alpha == "auto" else float(cfg.alpha)
+        scores = score_forecasts(
+            table.loc[table["issued"] < d], history.observations, as_of=history.as_of,
+            settings=ScoreSettings(window=cfg.window, alpha=alpha, baseline=cfg.baseline,
+                                   levels=cfg.levels, overshoot=cfg.overshoot,
+                                   background=cfg.background, power=cfg.power),
+        )
+    step("building the ensembles")
+    ens = build_ensemble(table, obs, issued=d, settings=settings, history=history)
+    step("back-testing")
+    start = d - pd.Timedelta(days=7 * cfg.backtest_weeks)
+    end = d - pd.Timedelta(days=1)
+    bt = None
+    if issue_dates_between(table, start, end, exclude={cfg.baseline}):
+        bt = backtest(table, obs, start=start, end=end, settings=settings)
+    step("facts and narrative")
+    revisions = pd.DataFrame(columns=["region", "quantity", "week_ending", "value_then",
+                                      "value_now", "change"])
+    if previous and previous.get("issued"):
+        revisions = revisions_between(inputs.observations.table,
+                                      earlier=pd.Timestamp(previous["issued"]), later=d)
+        revisions = revisions.loc[revisions["week_ending"] < d]
+    facts = build_facts(
+        cfg=cfg, issued=d, tool_version=__version__, observations=obs, forecasts=table,
+        scores=scores, ensemble=ens, backtest=bt, excluded=inputs.excluded,
+        previous=previous, revisions=revisions,
+    )
+    narrative = build_narrative(facts)
+    text = narrative_text(facts, narrative)
+    return BriefingRun(d, cfg, inputs, scores, ens, bt, facts, narrative, text, baseline,
+                       generated)
