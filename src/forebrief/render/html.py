@@ -1,0 +1,190 @@
+"""The briefing as HTML (Jinja2, autoescaped): self-contained, for screen and for print.
+
+The view model built here only selects and arranges values that the facts already hold as
+text; every number was computed and formatted in :mod:`forebrief.facts`.
+"""
+
+from __future__ import annotations
+
+import base64
+import struct
+from collections.abc import Sequence
+from dataclasses import dataclass
+from pathlib import Path
+from typing import Any, Literal
+
+import jinja2
+
+from forebrief.facts import BriefingFacts
+from forebrief.narrative import Narrative
+from forebrief.resources import template_root
+
+__all__ = ["FigureView", "render_html", "template_environment"]
+
+#: CSS pixels per inch, and the dpi the PNG charts are drawn at.
+_CSS_DPI = 96
+_SECTION_OF = {"outlook": "outlook", "fan": "outlook", "reliability": "trust",
+               "weights": "trust", "track": "track"}
+
+
+@dataclass(frozen=True)
+class FigureView:
+    """A chart as the templates place it."""
+
+    key: str
+    section: str
+    title: str
+    caption: str
+    alt: str
+    src: str
+    width_px: int
+    height_px: int
+    wide: bool = False
+
+
+def _png_size(png: bytes) -> tuple[int, int]:
+    if png[:8] != b"\x89PNG\r\n\x1a\n":
+        raise ValueError("not a PNG image")
+    w, h = struct.unpack(">II", png[16:24])
+    return int(w), int(h)
+
+
+def figure_views(charts: Sequence[Any], *, images: Literal["png", "svg"] = "png",
+                 dpi: int = 200) -> list[FigureView]:
+    """Turn chart specs (key, title, caption, alt, png, svg) into embeddable figures."""
+    out = []
+    for c in charts:
+        w, h = _png_size(c.png)
+        if images == "svg":
+            src = "data:image/svg+xml;base64," + base64.b64encode(c.svg.encode("utf-8")).decode()
+        else:
+            src = "data:image/png;base64," + base64.b64encode(c.png).decode()
+        prefix = c.key.split("_")[0].split(":")[0]
+        out.append(FigureView(
+            key=c.key, section=getattr(c, "section", None) or _SECTION_OF.get(prefix, "outlook"),
+            title=c.title, caption=c.caption, alt=c.alt, src=src,
+            width_px=round(w * _CSS_DPI / dpi), height_px=round(h * _CSS_DPI / dpi),
+            wide=getattr(c, "wide", False),
+        ))
+    return out
+
+
+def template_environment(templates_dir: Path | None = None) -> jinja2.Environment:
+    """Jinja2 with autoescaping on; an agency's ``templates_dir`` overrides shipped files.
+
+    Shipped templates are also reachable as ``forebrief/<name>``, so an override can
+    ``{% extends "forebrief/briefing.html.j2" %}`` and replace a single block.
+    """
+    shipped = jinja2.FileSystemLoader(str(template_root()))
+    loaders: list[jinja2.BaseLoader] = []
+    if templates_dir is not None:
+        from forebrief.errors import ConfigError
+
+        if not Path(templates_dir).is_dir():
+            raise ConfigError(f"templates_dir {templates_dir}: no such folder; fix: point "
+                              "[briefing] templates_dir at a folder of templates, or remove it")
+        loaders.append(jinja2.FileSystemLoader(str(templates_dir)))
+    loaders.append(jinja2.PrefixLoader({"forebrief": shipped}))
+    loaders.append(shipped)
+    return jinja2.Environment(
+        loader=jinja2.ChoiceLoader(loaders),
+        autoescape=True,
+        undefined=jinja2.StrictUndefined,
+        trim_blocks=True,
+        lstrip_blocks=True,
+        keep_trailing_newline=True,
+    )
+
+
+def _horizon_label(h: int) -> str:
+    return "Next week" if h == 1 else f"{h} weeks ahead"
+
+
+def _outlook_tables(facts: BriefingFacts) -> list[dict[str, Any]]:
+    tables = []
+    first = min(facts.horizons) if facts.horizons else 1
+    for q in facts.quantities:
+        rows_q = [o for o in facts.outlook if o.quantity == q["id"]]
+        if not rows_q:
+            continue
+        horizons = sorted({o.horizon for o in rows_q})
+        weeks = {o.horizon: o.week_ending_text for o in rows_q}
+        rows = []
+        for r in facts.regions:
+            cells = {o.horizon: o for o in rows_q if o.region == r["id"]}
+            if not cells:
+                continue
+            lead = cells.get(first) or next(iter(cells.values()))
+            thr = lead.p_above_threshold_text
+            rows.append({
+                "region_name": r["name"], "is_total": r["is_total"],
+                "last_value_text": lead.last_value_text,
+                "last_provisional": lead.last_provisional,
+                "cells": [cells[h] for h in horizons if h in cells],
+                "threshold_cell": (f"{thr} (line: {lead.threshold_text})" if thr
+                                   else "no alert line set"),
+            })
+        tables.append({
+            "caption": f"{q['name']} ({q['unit']}): combined forecast by region",
+            "horizons": [{"label": _horizon_label(h), "week": f"week ending {weeks[h]}"}
+                         for h in horizons],
+            "rows": rows,
+        })
+    return tables
+
+
+_VERDICT_CLASS = {"reliable": "reliable", "not yet rated": "unrated"}
+
+
+def _trust_tables(facts: BriefingFacts) -> list[dict[str, Any]]:
+    out = []
+    for q in facts.quantities:
+        rows = [v for v in facts.verdicts if v.quantity == q["id"]]
+        if not rows:
+            continue
+        out.append({
+            "caption": f"{q['name']}: each model's recent record",
+            "rows": [{**v.__dict__, "verdict_class": _VERDICT_CLASS.get(v.verdict, "warning")}
+                     for v in rows],
+        })
+    return out
+
+
+def _track_table(facts: BriefingFacts) -> dict[str, Any]:
+    first = min(facts.horizons) if facts.horizons else 1
+    order = {"weighted_pool": 0, "equal_pool": 1, "quantile_median": 2}
+    names = {q["id"]: q["name"] for q in facts.quantities}
+    rows = sorted((t for t in facts.track if t.horizon == first),
+                  key=lambda t: (t.quantity, order.get(t.method, 9)))
+    return {
+        "caption": f"Next-week forecasts over the last {facts.track_weeks} issue dates",
+        "rows": [{**t.__dict__, "quantity_name": names.get(t.quantity, t.quantity)}
+                 for t in rows],
+    }
+
+
+def render_html(
+    facts: BriefingFacts,
+    narrative: Narrative,
+    charts: Sequence[Any] = (),
+    *,
+    templates_dir: Path | None = None,
+    for_print: bool = False,
+    paper: str = "A4",
+    images: Literal["png", "svg"] = "png",
+    template: str = "briefing.html.j2",
+) -> str:
+    """The briefing as one self-contained HTML document (images embedded as data URIs)."""
+    env = template_environment(templates_dir)
+    sections = {s.key: s for s in narrative.sections}
+    return env.get_template(template).render(
+        facts=facts,
+        narrative=narrative,
+        sections=sections,
+        outlook_tables=_outlook_tables(facts),
+        trust_tables=_trust_tables(facts),
+        track_table=_track_table(facts),
+        charts=figure_views(charts, images=images),
+        for_print=for_print,
+        paper="letter" if paper == "letter" else "A4",
+    )

@@ -1,0 +1,58 @@
+"""The briefing as PDF with WeasyPrint, offline: no network address is ever fetched."""
+
+from __future__ import annotations
+
+from typing import Any
+
+from forebrief.errors import ConfigError
+
+__all__ = ["OfflineFetcher", "render_pdf"]
+
+
+def _fetcher_class() -> Any:
+    try:
+        from weasyprint.urls import FatalURLFetchingError, URLFetcher
+    except ImportError as exc:  # pragma: no cover - weasyprint is a dependency
+        raise ConfigError("WeasyPrint is needed for the PDF; fix: pip install weasyprint") \
+            from exc
+
+    class OfflineFetcher(URLFetcher):  # type: ignore[misc, valid-type]
+        """Loads only data: URIs and local files; refuses every network address."""
+
+        def __init__(self) -> None:
+            super().__init__(timeout=5, allowed_protocols={"data", "file"},
+                             fail_on_errors=False)
+
+        def fetch(self, url: str, headers: Any = None) -> Any:
+            scheme = url.split(":", 1)[0].lower()
+            if scheme not in ("data", "file"):
+                raise FatalURLFetchingError(f"refused to fetch {url!r}: the briefing is "
+                                            "rendered offline")
+            return super().fetch(url, headers)
+
+    return OfflineFetcher
+
+
+def OfflineFetcher() -> Any:  # noqa: N802 - a factory that reads like the class
+    return _fetcher_class()()
+
+
+def render_pdf(html: str, *, pdf_variant: str | None = None, attachments: Any = None,
+               identifier: bytes | None = None) -> bytes:
+    """Render print HTML to PDF bytes (deterministic for the same input)."""
+    try:
+        from weasyprint import HTML
+    except ImportError as exc:  # pragma: no cover
+        raise ConfigError("WeasyPrint is needed for the PDF; fix: pip install weasyprint") \
+            from exc
+    doc = HTML(string=html, base_url=None, url_fetcher=OfflineFetcher())
+    kwargs: dict[str, Any] = {}
+    if pdf_variant:
+        kwargs["pdf_variant"] = pdf_variant
+    if attachments:
+        kwargs["attachments"] = attachments
+    if identifier:
+        kwargs["pdf_identifier"] = identifier
+    out = doc.write_pdf(**kwargs)
+    assert out is not None
+    return bytes(out)
