@@ -37,8 +37,13 @@ class BacktestResult:
     ensembles: pd.DataFrame = field(default_factory=pd.DataFrame)
 
 
-def issue_dates_between(forecasts: pd.DataFrame, start: pd.Timestamp, end: pd.Timestamp, *,
-                        exclude: set[str] | None = None) -> list[pd.Timestamp]:
+def issue_dates_between(
+    forecasts: pd.DataFrame,
+    start: pd.Timestamp,
+    end: pd.Timestamp,
+    *,
+    exclude: set[str] | None = None,
+) -> list[pd.Timestamp]:
     """The issue dates of member forecasts from ``start`` to ``end`` inclusive."""
     f = forecasts
     if exclude:
@@ -68,8 +73,9 @@ def backtest(
     settings = settings or EnsembleSettings()
     start, end = pd.Timestamp(start), pd.Timestamp(end)
     if end < start:
-        raise ConfigError(f"--to {end:%Y-%m-%d} is before --from {start:%Y-%m-%d}; "
-                          "fix: swap the dates")
+        raise ConfigError(
+            f"--to {end:%Y-%m-%d} is before --from {start:%Y-%m-%d}; fix: swap the dates"
+        )
     baseline = settings.baseline
     exclude = {baseline} if baseline and not settings.include_baseline else set()
     dates = issue_dates_between(forecasts, start, end, exclude=exclude)
@@ -81,11 +87,22 @@ def backtest(
     notes: list[str] = []
     table = forecasts
     if baseline:
-        table, generated = with_baseline(forecasts, observations, issue_dates=dates,
-                                         name=baseline, signed=settings.signed)
+        # only the horizons the members forecast: a baseline alone at a horizon is no yardstick
+        members = forecasts.loc[forecasts["issued"].isin(dates) & ~forecasts["model"].isin(exclude)]
+        horizons = tuple(int(h) for h in sorted(members["horizon"].unique()))
+        table, generated = with_baseline(
+            forecasts,
+            observations,
+            issue_dates=dates,
+            name=baseline,
+            horizons=horizons,
+            signed=settings.signed,
+        )
         if generated:
-            notes.append(f"baseline {baseline!r} generated for each issue date from the data "
-                         "known on that date")
+            notes.append(
+                f"baseline {baseline!r} generated for each issue date from the data "
+                "known on that date"
+            )
     # The ensembles see the forecasts exactly as `forebrief ensemble` would on each date: a
     # baseline generated here for scoring stays out of the members' scoring panel (it would
     # widen the intrinsic ranges and so change every information score), unless it is a member.
@@ -108,15 +125,26 @@ def backtest(
     as_of = pd.Timestamp(latest["week_ending"].max())
     window = max(1, math.ceil((as_of - start).days / 7) + 1)
     scored = score_forecasts(
-        everything, latest, as_of=as_of,
-        settings=ScoreSettings(window=window, alpha=0.0, baseline=baseline,
-                               levels=settings.levels, overshoot=settings.overshoot,
-                               background=settings.background, power=settings.power),
+        everything,
+        latest,
+        as_of=as_of,
+        settings=ScoreSettings(
+            window=window,
+            alpha=0.0,
+            baseline=baseline,
+            levels=settings.levels,
+            overshoot=settings.overshoot,
+            background=settings.background,
+            power=settings.power,
+        ),
     )
     methods = set(pooled["model"].unique())
     scores = scored.by_model.copy()
-    kind = np.where(scores["model"].isin(methods), "ensemble",
-                    np.where(scores["model"] == baseline, "baseline", "member"))
+    kind = np.where(
+        scores["model"].isin(methods),
+        "ensemble",
+        np.where(scores["model"] == baseline, "baseline", "member"),
+    )
     scores.insert(3, "kind", kind)
     scores = scores.drop(columns=["weight", "passes_cutoff", "equal_weights"])
     history = pd.concat(weights, ignore_index=True)

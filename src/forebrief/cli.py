@@ -340,9 +340,9 @@ def _ensemble_settings(args: argparse.Namespace) -> Any:
 
 
 def _cmd_baseline(args: argparse.Namespace, con: _Console) -> int:
+    from forebrief.baseline import persistence_forecast
     from forebrief.ensemble import known_on
     from forebrief.io.outputs import write_table
-    from forebrief.baseline import persistence_forecast
     from forebrief.workflow import load_observations
 
     obs = load_observations(args.observations, columns=_columns(args), signed=_signed(args),
@@ -530,10 +530,15 @@ def _cmd_brief(args: argparse.Namespace, con: _Console) -> int:
     from forebrief.pipeline import record_briefing
 
     cfg = _brief_config(args)
+    if args.revise and not (args.reason or "").strip():
+        raise ConfigError("--revise needs --reason \"...\" saying why the record is revised")
+    if args.reason and not args.revise:
+        raise ConfigError("--reason is only used with --revise")
     with con.stages(8) as stage:
-        outcome = record_briefing(cfg, issued=args.issued, stage=stage)
+        outcome = record_briefing(cfg, issued=args.issued, stage=stage,
+                                  revise_reason=args.reason if args.revise else None)
     _report_problems(outcome.problems, con)
-    record = outcome.record
+    record = outcome.record.path
     con.out.print(str(record), markup=False)
     con.say(f"briefing written: {record / 'briefing.txt'}")
     return 0
@@ -557,7 +562,7 @@ def _cmd_demo(args: argparse.Namespace, con: _Console) -> int:
     with con.stages(8) as stage:
         outcome = record_briefing(cfg, issued=None, stage=stage)
     _report_problems(outcome.problems, con)
-    record = outcome.record
+    record = outcome.record.path
     con.out.print(str(record), markup=False)
     con.say(f"briefing written: {record / 'briefing.txt'}; rerun it with "
             f"forebrief brief --config {out / 'forebrief.toml'}")
@@ -575,6 +580,9 @@ def _add_weekly_commands(sub: Any) -> None:
     p.add_argument("--observations", nargs="+", metavar="O",
                    help="override the config's observations")
     p.add_argument("--archive", type=Path, metavar="DIR", help="override the archive folder")
+    p.add_argument("--revise", action="store_true",
+                   help="write a new revision of an existing record (needs --reason)")
+    p.add_argument("--reason", metavar="TEXT", help="why the record is revised")
     _add_common(p)
     p.set_defaults(func=_cmd_brief)
 
@@ -586,6 +594,156 @@ def _add_weekly_commands(sub: Any) -> None:
                    help="folder for the demo (default ./forebrief-demo)")
     _add_common(p)
     p.set_defaults(func=_cmd_demo)
+
+
+def _cmd_archive(args: argparse.Namespace, con: _Console) -> int:
+    from forebrief import archive as arc
+
+    root: Path = args.archive
+    if not root.is_dir():
+        from forebrief.errors import ArchiveError
+
+        raise ArchiveError(f"{root}: no such archive folder; fix: give the folder that holds "
+                           "the dated records (the [archive] folder of forebrief.toml)")
+    if args.action == "list":
+        records = arc.list_records(root)
+        if not records:
+            con.say(f"{root}: no records yet")
+            return 0
+        from rich.table import Table
+
+        table = Table(title=f"Records in {root}", title_justify="left")
+        for col in ("record", "issued", "revision", "title", "decisions", "sends", "headline"):
+            table.add_column(col)
+        for r in records:
+            n_dec = len(arc.read_log(r.path, arc.DECISIONS))
+            n_send = len(arc.read_log(r.path, arc.SENDS))
+            head = r.headline if len(r.headline) <= 90 else r.headline[:87] + "..."
+            table.add_row(r.name, r.issued, str(r.revision), r.title, str(n_dec), str(n_send),
+                          head)
+        con.out.print(table)
+        return 0
+    if args.action == "show":
+        r = arc.find_record(root, args.date)
+        m = r.manifest
+        lines = [
+            f"record      {r.name}  (sequence {r.sequence} of the archive's chain)",
+            f"issued      {r.issued}",
+            f"title       {r.title}",
+            f"created     {m.get('created')}  by forebrief {m.get('tool_version')}",
+        ]
+        if m.get("supersedes"):
+            lines.append(f"revision    {r.revision}, supersedes {m['supersedes']}: "
+                         f"{m.get('revision_reason')}")
+        lines.append(f"headline    {r.headline}")
+        lines.append(f"inputs      {len(m.get('inputs', []))} file(s), data as of "
+                     f"{m.get('decisions', {}).get('data_as_of')}")
+        for g in m.get("decisions", {}).get("alpha", []):
+            lines.append(f"cutoff      {g['quantity']} {g['horizon']} wk ahead: "
+                         f"alpha {g['alpha']:.3g} ({g['how']})")
+        excluded = m.get("decisions", {}).get("excluded", [])
+        lines.append(f"excluded    {len(excluded)} forecast(s)/observation(s) quarantined")
+        lines.append("files       " + ", ".join(sorted(o["path"] for o in m.get("outputs", [])
+                                                       if "/" not in o["path"])))
+        for e in arc.read_log(r.path, arc.DECISIONS):
+            ref = f" [ref {e['ref']}]" if e.get("ref") else ""
+            lines.append(f"decision {e['seq']}  {e['time']}  {e['by']}: {e['text']}{ref}")
+        for e in arc.read_log(r.path, arc.SENDS):
+            lines.append(f"sent {e['seq']}      {e['time']}  to {', '.join(e['recipients'])}: "
+                         f"{e.get('server_reply', '')}")
+        con.out.print("\n".join(lines), markup=False)
+        return 0
+    if args.action == "verify":
+        report = arc.verify_archive(root, args.date)
+        for w in report.warnings:
+            con.err.print(f"warning: {w}", markup=False)
+        for p in report.problems:
+            con.out.print(f"FAILED: {p}", markup=False)
+        if report.ok:
+            con.say(f"verified {len(report.checked)} record(s): every file, the hash chain and "
+                    "the decision and send logs are intact")
+            return 0
+        con.say(f"{len(report.problems)} problem(s) found in {root}")
+        return 1
+    if args.action == "reproduce":
+        from forebrief.pipeline import reproduce_record
+
+        rep = reproduce_record(root, args.date)
+        for name in rep.different:
+            con.out.print(f"DIFFERENT: {name}", markup=False)
+        for name in rep.missing:
+            con.out.print(f"MISSING: {name}", markup=False)
+        if rep.ok:
+            con.say(f"{rep.record}: reproduced from its archived inputs and configuration; all "
+                    f"{len(rep.identical)} outputs are identical")
+            return 0
+        con.say(f"{rep.record}: {len(rep.different)} output(s) differ, {len(rep.missing)} "
+                "missing")
+        return 1
+    if args.action == "reindex":
+        path = arc.rebuild_index(root)
+        con.say(f"rebuilt {path} from the record folders")
+        return 0
+    raise ConfigError(f"unknown archive action {args.action!r}")  # pragma: no cover
+
+
+def _cmd_decide(args: argparse.Namespace, con: _Console) -> int:
+    import datetime as dt
+
+    from forebrief import archive as arc
+
+    for name, value in (("--text", args.text), ("--by", args.by)):
+        if not value or not value.strip():
+            raise ConfigError(f"{name} must not be empty; fix: say what was decided and who "
+                              "decided it")
+        if any(ch in value for ch in "\r\n\x00"):
+            raise ConfigError(f"{name} must be one line; fix: remove the line breaks")
+    record = arc.find_record(args.archive, args.date)
+    entry = arc.append_log(args.archive, record, arc.DECISIONS, {
+        "time": dt.datetime.now(dt.UTC).replace(microsecond=0).isoformat(),
+        "by": args.by.strip(), "text": args.text.strip(), "ref": args.ref,
+    })
+    con.say(f"decision {entry['seq']} recorded on {record.name} (hash {entry['hash'][:12]})")
+    return 0
+
+
+def _add_archive_commands(sub: Any) -> None:
+    p = sub.add_parser("archive", help="list, show, verify or reproduce archived records",
+                       description="Work with the dated records of an archive folder.")
+    asub = p.add_subparsers(dest="action", metavar="ACTION")
+    asub.required = True
+    for action, helptext in (
+        ("list", "date, title, headline, revisions and decisions of every record"),
+        ("show", "one record: what it holds, how it was made, its decisions and sends"),
+        ("verify", "recompute every hash, the chain of records and the logs; exit 1 if "
+                   "anything changed or is missing"),
+        ("reproduce", "rerun a record's analysis from its archived inputs and check every "
+                      "output is identical"),
+        ("reindex", "rebuild archive.sqlite from the record folders"),
+    ):
+        q = asub.add_parser(action, help=helptext, description=helptext[0].upper()
+                            + helptext[1:] + ".")
+        q.add_argument("archive", type=Path, metavar="ARCHIVE", help="the archive folder")
+        if action in ("show", "reproduce"):
+            q.add_argument("date", metavar="DATE", help="YYYY-MM-DD (latest revision) or "
+                           "YYYY-MM-DD-rN")
+        elif action == "verify":
+            q.add_argument("date", metavar="DATE", nargs="?", default=None,
+                           help="only this record (the chain is always checked)")
+        _add_common(q)
+        q.set_defaults(func=_cmd_archive)
+
+    p = sub.add_parser("decide", help="record a decision taken on a briefing",
+                       description="Append a decision to a record's hash-chained decision log "
+                       "(the briefing itself is never edited).")
+    p.add_argument("archive", type=Path, metavar="ARCHIVE", help="the archive folder")
+    p.add_argument("--date", required=True, metavar="D",
+                   help="the briefing's issue date (YYYY-MM-DD, or YYYY-MM-DD-rN)")
+    p.add_argument("--text", required=True, help="what was decided")
+    p.add_argument("--by", required=True, help="who decided it")
+    p.add_argument("--ref", default=None, help="a reference (minute, ticket, paper)")
+    _add_common(p)
+    p.set_defaults(func=_cmd_decide)
 
 
 # --------------------------------------------------------------------------------------------
@@ -633,6 +791,7 @@ def build_parser() -> argparse.ArgumentParser:
 
     _add_pooling_commands(sub)
     _add_weekly_commands(sub)
+    _add_archive_commands(sub)
     return parser
 
 

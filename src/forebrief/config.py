@@ -8,6 +8,7 @@ at all the run uses the defaults below.
 
 from __future__ import annotations
 
+import math
 import tomllib
 from collections.abc import Mapping
 from dataclasses import dataclass, field, fields, replace
@@ -23,6 +24,7 @@ __all__ = [
     "QuantityInfo",
     "RegionInfo",
     "Threshold",
+    "config_from_dict",
     "load_config",
     "parse_config",
 ]
@@ -181,7 +183,8 @@ def _string(value: Any, key: str, source: Path | None, *, empty_ok: bool = False
 
 def _number(value: Any, key: str, source: Path | None, *, low: float | None = None,
             high: float | None = None, integer: bool = False) -> float:
-    ok = isinstance(value, int | float) and not isinstance(value, bool)
+    ok = (isinstance(value, int | float) and not isinstance(value, bool)
+          and math.isfinite(float(value)))
     if ok and integer and not float(value).is_integer():
         ok = False
     if ok and low is not None and value < low:
@@ -271,9 +274,17 @@ def parse_config(data: Mapping[str, Any], *, source: Path | None = None,
         if "population" in r:
             pop = _number(r["population"], f"{key}.population", source, low=1)
         regions[rid] = RegionInfo(rid, _string(r.get("name", rid), f"{key}.name", source), pop)
-        for q, t in r.get("thresholds", {}).items():
+        thresholds = r.get("thresholds", {})
+        if not isinstance(thresholds, Mapping):
+            raise _err(source, f"{key}.thresholds", f"must be a table of quantities; got "
+                       f"{thresholds!r}", f"write thresholds.admissions = 300 under [regions.{rid}]")
+        for q, t in thresholds.items():
             tkey = f"{key}.thresholds.{q}"
             if isinstance(t, Mapping):
+                for k in t:
+                    if k not in ("value", "label"):
+                        raise _err(source, f"{tkey}.{k}", "is not a known key",
+                                   "use value and label")
                 value = _number(t.get("value"), f"{tkey}.value", source)
                 label = _string(t.get("label", "alert threshold"), f"{tkey}.label", source)
             else:
@@ -405,3 +416,39 @@ def load_config(path: Path) -> BriefingConfig:
         raise ConfigError(f"{path}: not valid TOML ({exc}); fix: correct the line named") \
             from None
     return parse_config(data, source=path.resolve())
+
+
+def config_from_dict(data: Mapping[str, Any]) -> BriefingConfig:
+    """Rebuild a configuration from :meth:`BriefingConfig.as_dict` (a record's manifest)."""
+    d = dict(data)
+    out: dict[str, Any] = {}
+    for f in fields(BriefingConfig):
+        if f.name not in d:
+            continue
+        v = d[f.name]
+        if f.name in ("source", "templates_dir"):
+            out[f.name] = None if v is None else Path(v)
+        elif f.name == "archive":
+            out[f.name] = Path(v)
+        elif f.name in ("forecasts", "observations"):
+            out[f.name] = tuple(Path(p) for p in v)
+        elif f.name in ("levels",):
+            out[f.name] = tuple(float(x) for x in v)
+        elif f.name == "horizons":
+            out[f.name] = tuple(int(x) for x in v)
+        elif f.name == "regions":
+            out[f.name] = {k: RegionInfo(**r) for k, r in v.items()}
+        elif f.name == "quantities":
+            out[f.name] = {k: QuantityInfo(**q) for k, q in v.items()}
+        elif f.name == "thresholds":
+            out[f.name] = tuple(Threshold(**t) for t in v)
+        elif f.name == "email":
+            e = dict(v)
+            for key in ("to", "cc"):
+                e[key] = tuple(e.get(key, ()))
+            out[f.name] = EmailConfig(**e)
+        elif f.name == "columns":
+            out[f.name] = dict(v)
+        else:
+            out[f.name] = v
+    return BriefingConfig(**out)

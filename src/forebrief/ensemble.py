@@ -7,9 +7,11 @@ Three methods, each giving quantiles in the forecast format:
 - ``equal_pool``: the linear pool with equal weights;
 - ``quantile_median``: at each level, the median of the members' quantiles.
 
-Information barrier: the weights come from :func:`forebrief.scoring.engine.score_forecasts`
-run as of the last observed week before the issue date D, on observations with
-``week_ending < D`` and, when vintages exist, ``reported <= D``. Nothing later is read.
+Information barrier: the weights are the Classical Model scores that
+:func:`forebrief.scoring.engine.score_forecasts` gives as of the last observed week before the
+issue date D (same window, same arithmetic; :func:`history_scores` skips the interval scores),
+on observations with ``week_ending < D`` and, when vintages exist, ``reported <= D``. Nothing
+later is read.
 
 The cutoff alpha is fixed or optimised (``"auto"``): among 0 and the members' calibration
 scores, the one that gives the weighted pool, scored as a virtual expert on the window's items,
@@ -37,10 +39,11 @@ from forebrief.observations import observations_as_of
 from forebrief.schema import CM_LEVELS, Background, check_choice, cm_probabilities
 from forebrief.scoring.classical import bin_index, calibration_score, information_score
 from forebrief.scoring.engine import (
+    ClassicalArrays,
     ScoreSettings,
+    WindowTable,
     build_window,
     classical_arrays,
-    score_forecasts,
 )
 
 __all__ = [
@@ -112,11 +115,10 @@ class EnsembleSettings:
 
     def __post_init__(self) -> None:
         check_choice("background", self.background, Background)
-        if self.alpha != "auto":
-            if isinstance(self.alpha, str) or not 0.0 <= float(self.alpha) <= 1.0:
-                raise ConfigError(
-                    f"alpha must be 'auto' or a number in [0, 1]; got {self.alpha!r}"
-                )
+        if self.alpha != "auto" and (
+            isinstance(self.alpha, str) or not 0.0 <= float(self.alpha) <= 1.0
+        ):
+            raise ConfigError(f"alpha must be 'auto' or a number in [0, 1]; got {self.alpha!r}")
         if not isinstance(self.min_items, int) or self.min_items < 0:
             raise ConfigError(f"min_items must be a whole number >= 0; got {self.min_items!r}")
 
@@ -132,6 +134,23 @@ class EnsembleSettings:
 
 
 @dataclass(frozen=True)
+class PoolData:
+    """The weighted pool's ingredients on each target item, for evaluating its CDF.
+
+    ``values`` (items, members, levels) with nan where absent, per-item ``weights`` (items,
+    members), and the support ``lower``/``upper``; see :func:`forebrief.distributions.pool_cdf`.
+    """
+
+    items: pd.DataFrame
+    models: np.ndarray
+    levels: np.ndarray
+    values: np.ndarray
+    weights: np.ndarray
+    lower: np.ndarray
+    upper: np.ndarray
+
+
+@dataclass(frozen=True)
 class EnsembleResult:
     """The pooled forecasts of one issue date, the weights used, and how they were chosen."""
 
@@ -142,6 +161,7 @@ class EnsembleResult:
     summary: dict[str, Any]
     notes: tuple[str, ...] = ()
     members: tuple[str, ...] = field(default_factory=tuple)
+    pool: PoolData | None = None
 
 
 # --------------------------------------------------------------------------------------------
@@ -150,12 +170,21 @@ class EnsembleResult:
 
 @dataclass(frozen=True)
 class History:
-    """Scores of the past window as known on the issue date (empty when nothing is known)."""
+    """What the past window tells about each model, as known on the issue date.
+
+    ``ratings`` holds one row per (quantity, horizon, model) with ``n_cm_items``,
+    ``calibration`` and ``information``: the values :func:`forebrief.scoring.engine.
+    score_forecasts` gives on the same window (the tests check this). ``window`` and
+    ``classical`` are the window's forecasts and their Classical Model arrays, used again to
+    score the weighted pool as a virtual expert. All but ``observations`` are None when nothing
+    is known yet.
+    """
 
     as_of: pd.Timestamp | None
     observations: pd.DataFrame
-    scores: Any  # ScoreResult | None
-    window: Any  # WindowTable | None
+    ratings: pd.DataFrame | None
+    window: WindowTable | None
+    classical: ClassicalArrays | None = None
 
 
 def known_on(observations: pd.DataFrame, issued: pd.Timestamp) -> pd.DataFrame:
@@ -168,6 +197,59 @@ def known_on(observations: pd.DataFrame, issued: pd.Timestamp) -> pd.DataFrame:
     return known.assign(reported=pd.NaT).astype({"reported": "datetime64[ns]"})
 
 
+_RATING_KEYS = ["quantity", "horizon", "model"]
+
+
+def _ratings(
+    window: WindowTable, ca: ClassicalArrays | None, settings: ScoreSettings
+) -> pd.DataFrame:
+    """Calibration and information per (quantity, horizon, model) of a window.
+
+    The same arithmetic as the ``by_model`` table of
+    :func:`forebrief.scoring.engine.score_forecasts` (Cooke 1991, ch. 12: bin counts ->
+    calibration; mean information over the CM-scored items), in the same order of summation,
+    so the values are identical, without the interval scores the weights do not need.
+    O(forecasts x levels).
+    """
+    heads = window.heads
+    n = len(heads)
+    bins = np.full(n, -1, dtype=np.int64)
+    info = np.full(n, np.nan)
+    if ca is not None:
+        idx = np.flatnonzero(ca.use)
+        if idx.size:
+            info[idx] = information_score(
+                ca.quantiles[idx],
+                ca.lower[idx],
+                ca.upper[idx],
+                cm_probabilities(settings.levels),
+                floor=settings.floor,
+            )
+            bins[idx] = bin_index(ca.raw_quantiles[idx], ca.raw_observed[idx])
+    # the scoring engine aggregates items in this order; keep it for identical sums
+    order = heads.sort_values(
+        ["quantity", "horizon", "region", "week_ending", "model"], kind="stable"
+    ).index.to_numpy()
+    keys = heads.iloc[order][_RATING_KEYS].reset_index(drop=True)
+    bins, info = bins[order], info[order]
+    code, n_g = group_codes([keys[k] for k in _RATING_KEYS])
+    first = np.full(n_g, -1, dtype=np.int64)
+    first[code[::-1]] = np.arange(n - 1, -1, -1)
+    out = keys.iloc[first].reset_index(drop=True)
+    cm = bins >= 0
+    counts = np.zeros((n_g, len(settings.levels) + 1), dtype=np.int64)
+    np.add.at(counts, (code[cm], bins[cm]), 1)
+    out["n_cm_items"] = counts.sum(axis=1)
+    out["calibration"] = calibration_score(
+        counts, cm_probabilities(settings.levels), power=settings.power
+    )
+    ok = ~np.isnan(info)
+    total = np.bincount(code[ok], weights=info[ok], minlength=n_g)
+    many = np.bincount(code[ok], minlength=n_g)
+    out["information"] = np.divide(total, many, out=np.full(n_g, np.nan), where=many > 0)
+    return out
+
+
 def history_scores(
     forecasts: pd.DataFrame,
     observations: pd.DataFrame,
@@ -175,15 +257,32 @@ def history_scores(
     issued: pd.Timestamp,
     settings: EnsembleSettings,
 ) -> History:
-    """Score every model on the window before ``issued`` with only what was known then."""
+    """Rate every model on the window before ``issued`` with only what was known then.
+
+    The window is the scoring engine's: target weeks ``as_of - 7 W < week_ending <= as_of``
+    of forecasts issued before ``issued`` (and by ``as_of``), with ``as_of`` the last week
+    observed before ``issued``. It is built once and reused for the virtual-expert scores.
+    O(forecast rows) for the selection plus O(window rows) for the scores.
+    """
     known = known_on(observations, issued)
-    past = forecasts.loc[forecasts["issued"] < issued]
-    if known.empty or past.empty:
+    issued_col = forecasts["issued"]
+    before = (issued_col < issued).to_numpy()
+    if known.empty or not before.any():
         return History(None, known, None, None)
     as_of = pd.Timestamp(known["week_ending"].max())
-    scores = score_forecasts(past, known, as_of=as_of, settings=settings.score_settings())
-    window, _ = build_window(past, known, as_of=as_of, window=settings.window)
-    return History(as_of, known, scores, window)
+    week = forecasts["week_ending"]
+    start = as_of - pd.Timedelta(days=7 * settings.window)
+    # the engine's window_items on the past forecasts, without copying all of them first
+    rows = forecasts.loc[
+        before
+        & (week > start).to_numpy()
+        & (week <= as_of).to_numpy()
+        & (issued_col <= as_of).to_numpy()
+    ]
+    score_settings = settings.score_settings()
+    window, _ = build_window(rows, known, as_of=as_of, window=settings.window)
+    ca = classical_arrays(window, score_settings)
+    return History(as_of, known, _ratings(window, ca, score_settings), window, ca)
 
 
 # --------------------------------------------------------------------------------------------
@@ -200,12 +299,14 @@ class _Cube:
     values: np.ndarray  # (n, m, k)
 
 
-def _cube(rows: pd.DataFrame, *, item_cols: Sequence[str] = ("region", "quantity",
-                                                             "week_ending", "horizon")) -> _Cube:
+def _cube(
+    rows: pd.DataFrame,
+    *,
+    item_cols: Sequence[str] = ("region", "quantity", "week_ending", "horizon"),
+) -> _Cube:
     icode, n_items = group_codes([rows[c] for c in item_cols])
     models, mcode = np.unique(rows["model"].to_numpy().astype(str), return_inverse=True)
-    levels, lcode = np.unique(np.round(rows["level"].to_numpy(dtype=float), 9),
-                              return_inverse=True)
+    levels, lcode = np.unique(np.round(rows["level"].to_numpy(dtype=float), 9), return_inverse=True)
     values = np.full((n_items, models.size, levels.size), np.nan)
     values[icode, mcode, lcode] = rows["value"].to_numpy(dtype=float)
     first = np.full(n_items, -1, dtype=np.int64)
@@ -215,17 +316,23 @@ def _cube(rows: pd.DataFrame, *, item_cols: Sequence[str] = ("region", "quantity
 
 
 def _rated_weights(
-    history: History, members: np.ndarray, quantity: str, horizon: int, *,
+    history: History,
+    members: np.ndarray,
+    quantity: str,
+    horizon: int,
+    *,
     settings: EnsembleSettings,
 ) -> pd.DataFrame:
     """Calibration, information and rating of each member for one (quantity, horizon)."""
     rows = pd.DataFrame({"model": members})
     rows["quantity"] = quantity
     rows["horizon"] = horizon
-    if history.scores is not None and not history.scores.by_model.empty:
-        bm = history.scores.by_model
-        bm = bm.loc[(bm["quantity"] == quantity) & (bm["horizon"] == horizon),
-                    ["model", "n_cm_items", "calibration", "information"]]
+    if history.ratings is not None and not history.ratings.empty:
+        bm = history.ratings
+        bm = bm.loc[
+            (bm["quantity"] == quantity) & (bm["horizon"] == horizon),
+            ["model", "n_cm_items", "calibration", "information"],
+        ]
         rows = rows.merge(bm, on="model", how="left")
     else:
         rows["n_cm_items"] = 0
@@ -233,10 +340,31 @@ def _rated_weights(
         rows["information"] = np.nan
     rows["n_cm_items"] = rows["n_cm_items"].fillna(0).astype(int)
     rows = rows.rename(columns={"n_cm_items": "n_items"})
-    rows["rated"] = (rows["n_items"] >= settings.min_items) & rows["calibration"].notna() & \
-        rows["information"].notna()
+    rows["rated"] = (
+        (rows["n_items"] >= settings.min_items)
+        & rows["calibration"].notna()
+        & rows["information"].notna()
+    )
     rows["combined"] = rows["calibration"] * rows["information"]
     return rows
+
+
+def _status(rated: pd.DataFrame, alpha: float, min_items: int) -> list[str]:
+    """Why each member has the weight it has: rated, below the cutoff, or not yet rated."""
+    below = f"below the calibration cutoff {alpha:.3g}"
+    return [
+        "rated"
+        if ok and not cal < alpha
+        else below
+        if ok
+        else f"not yet rated ({n} scored items, {min_items} needed)"
+        for ok, cal, n in zip(
+            rated["rated"].to_numpy(dtype=bool),
+            rated["calibration"].to_numpy(dtype=float),
+            rated["n_items"].to_numpy(dtype=np.int64),
+            strict=True,
+        )
+    ]
 
 
 def _cutoff_weights(rated: pd.DataFrame, alpha: float) -> np.ndarray:
@@ -260,24 +388,31 @@ class _VirtualExpert:
         return self.calibration * self.information
 
 
-def _dm_history_cube(history: History, models: np.ndarray, quantity: str, horizon: int,
-                     settings: EnsembleSettings) -> tuple[np.ndarray, np.ndarray, np.ndarray,
-                                                          np.ndarray] | None:
-    """Members' CM quantiles on the past window's items (background scale), with ranges."""
-    if history.window is None:
-        return None
-    ca = classical_arrays(history.window, settings.score_settings())
-    if ca is None:
+def _dm_history_cube(
+    history: History, models: np.ndarray, quantity: str, horizon: int, settings: EnsembleSettings
+) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray] | None:
+    """Members' CM quantiles on the past window's items (background scale), with ranges.
+
+    ``models`` is sorted (it comes from ``np.unique``). O(window forecasts).
+    """
+    ca = history.classical
+    if history.window is None or ca is None:
         return None
     heads = history.window.heads
-    sel = (ca.use & (heads["quantity"] == quantity).to_numpy()
-           & (heads["horizon"] == horizon).to_numpy() & heads["model"].isin(models).to_numpy())
+    names = heads["model"].to_numpy().astype(str)
+    pos = np.minimum(np.searchsorted(models, names), max(models.size - 1, 0))
+    member = (models[pos] == names) if models.size else np.zeros(names.size, dtype=bool)
+    sel = (
+        ca.use
+        & (heads["quantity"] == quantity).to_numpy()
+        & (heads["horizon"] == horizon).to_numpy()
+        & member
+    )
     idx = np.flatnonzero(sel)
     if idx.size == 0:
         return None
     icode, n_items = group_codes([ca.item[idx]])
-    mpos = {m: j for j, m in enumerate(models)}
-    mcode = np.array([mpos[m] for m in heads["model"].to_numpy()[idx]])
+    mcode = pos[idx]
     cube = np.full((n_items, models.size, len(settings.levels)), np.nan)
     cube[icode, mcode] = ca.quantiles[idx]
     lower = np.empty(n_items)
@@ -289,9 +424,14 @@ def _dm_history_cube(history: History, models: np.ndarray, quantity: str, horizo
     return cube, lower, upper, y
 
 
-def _score_virtual_expert(cube: np.ndarray, lower: np.ndarray, upper: np.ndarray,
-                          y: np.ndarray, weights: np.ndarray,
-                          settings: EnsembleSettings) -> _VirtualExpert:
+def _score_virtual_expert(
+    cube: np.ndarray,
+    lower: np.ndarray,
+    upper: np.ndarray,
+    y: np.ndarray,
+    weights: np.ndarray,
+    settings: EnsembleSettings,
+) -> _VirtualExpert:
     """Calibration and information of the pool of ``cube`` with member ``weights``."""
     levels = np.asarray(settings.levels)
     w = np.broadcast_to(weights, cube.shape[:2]).copy()
@@ -309,8 +449,9 @@ def _score_virtual_expert(cube: np.ndarray, lower: np.ndarray, upper: np.ndarray
     return _VirtualExpert(cal, info, int(ok.sum()))
 
 
-def _choose_alpha(rated: pd.DataFrame, dm_data: tuple[np.ndarray, ...] | None,
-                  settings: EnsembleSettings) -> tuple[float, _VirtualExpert | None, int]:
+def _choose_alpha(
+    rated: pd.DataFrame, dm_data: tuple[np.ndarray, ...] | None, settings: EnsembleSettings
+) -> tuple[float, _VirtualExpert | None, int]:
     """Optimised cutoff over {0} and the rated members' calibration scores; ties to the smaller."""
     candidates = [0.0]
     if settings.alpha == "auto":
@@ -342,13 +483,20 @@ def _common_levels(values: np.ndarray, levels: np.ndarray) -> np.ndarray:
     """(n, k) mask of levels every present member gives for each item."""
     present_member = ~np.isnan(values).all(axis=2)  # (n, m)
     has_level = ~np.isnan(values)  # (n, m, k)
-    return np.all(has_level | ~present_member[:, :, None], axis=1) & present_member.any(axis=1)[
-        :, None
-    ]
+    return (
+        np.all(has_level | ~present_member[:, :, None], axis=1)
+        & present_member.any(axis=1)[:, None]
+    )
 
 
-def _pool_all(values: np.ndarray, levels: np.ndarray, weights: np.ndarray,
-              out_mask: np.ndarray, lower: np.ndarray, upper: np.ndarray) -> np.ndarray:
+def _pool_all(
+    values: np.ndarray,
+    levels: np.ndarray,
+    weights: np.ndarray,
+    out_mask: np.ndarray,
+    lower: np.ndarray,
+    upper: np.ndarray,
+) -> np.ndarray:
     """Linear-pool quantiles at each item's common levels (nan elsewhere)."""
     out = np.full(out_mask.shape, np.nan)
     patterns, inverse = np.unique(out_mask, axis=0, return_inverse=True)
@@ -364,9 +512,9 @@ def _pool_all(values: np.ndarray, levels: np.ndarray, weights: np.ndarray,
     return out
 
 
-def _long(items: pd.DataFrame, method: str, issued: pd.Timestamp, levels: np.ndarray,
-          values: np.ndarray) -> pd.DataFrame:
-    n, k = values.shape
+def _long(
+    items: pd.DataFrame, method: str, issued: pd.Timestamp, levels: np.ndarray, values: np.ndarray
+) -> pd.DataFrame:
     ok = ~np.isnan(values)
     ii, kk = np.nonzero(ok)
     out = items.iloc[ii].reset_index(drop=True)
@@ -392,15 +540,18 @@ def build_ensemble(
     pooling pass per candidate alpha over the window's items, and one over the targets.
     """
     settings = settings or EnsembleSettings()
-    issued = pd.Timestamp(issued)
+    issued = pd.Timestamp(issued).as_unit("ns")  # the tables' resolution, whatever the caller's
     notes: list[str] = []
     baseline = settings.baseline
     excluded_models = set() if settings.include_baseline or baseline is None else {baseline}
-    today = forecasts.loc[(forecasts["issued"] == issued)
-                          & ~forecasts["model"].isin(excluded_models)]
+    today = forecasts.loc[
+        (forecasts["issued"] == issued) & ~forecasts["model"].isin(excluded_models)
+    ]
     if today.empty:
-        dates = sorted(pd.Timestamp(d) for d in forecasts.loc[
-            ~forecasts["model"].isin(excluded_models), "issued"].unique())
+        dates = sorted(
+            pd.Timestamp(d)
+            for d in forecasts.loc[~forecasts["model"].isin(excluded_models), "issued"].unique()
+        )
         near = sorted(dates, key=lambda d: abs((d - issued).days))[:3]
         listed = ", ".join(f"{d:%Y-%m-%d}" for d in sorted(near)) or "none"
         raise ConfigError(
@@ -410,12 +561,15 @@ def build_ensemble(
     if history is None:
         history = history_scores(forecasts, observations, issued=issued, settings=settings)
     if history.as_of is None:
-        why = ("no observations are known" if history.observations.empty
-               else "no model has forecasts")
-        notes.append(f"{why} before {issued:%Y-%m-%d}: no model can be rated yet, so the "
-                     "weighted pool uses equal weights")
+        why = (
+            "no observations are known" if history.observations.empty else "no model has forecasts"
+        )
+        notes.append(
+            f"{why} before {issued:%Y-%m-%d}: no model can be rated yet, so the "
+            "weighted pool uses equal weights"
+        )
     cube = _cube(today)
-    n, m, k = cube.values.shape
+    n, m, _ = cube.values.shape
     lower, upper = support_bounds(cube.values, overshoot=settings.overshoot)
     common = _common_levels(cube.values, cube.levels)
     member_present = ~np.isnan(cube.values).all(axis=2)
@@ -423,11 +577,13 @@ def build_ensemble(
     weight_rows = []
     pool_w = np.zeros((n, m))
     summary_groups = []
-    groups = cube.items[["quantity", "horizon"]].drop_duplicates().sort_values(
-        ["quantity", "horizon"])
+    groups = (
+        cube.items[["quantity", "horizon"]].drop_duplicates().sort_values(["quantity", "horizon"])
+    )
     for quantity, horizon in groups.itertuples(index=False, name=None):
-        in_group = ((cube.items["quantity"] == quantity)
-                    & (cube.items["horizon"] == horizon)).to_numpy()
+        in_group = (
+            (cube.items["quantity"] == quantity) & (cube.items["horizon"] == horizon)
+        ).to_numpy()
         gm = np.flatnonzero(member_present[in_group].any(axis=0))
         members = cube.models[gm]
         rated = _rated_weights(history, members, quantity, int(horizon), settings=settings)
@@ -437,15 +593,7 @@ def build_ensemble(
         fallback = not (raw > 0).any()
         total = raw.sum()
         norm_w = raw / total if total > 0 else np.full(raw.size, 1.0 / max(raw.size, 1))
-        status = []
-        for _, r in rated.iterrows():
-            if not r["rated"]:
-                status.append(f"not yet rated ({int(r['n_items'])} scored items, "
-                              f"{settings.min_items} needed)")
-            elif r["calibration"] < alpha:
-                status.append(f"below the calibration cutoff {alpha:.3g}")
-            else:
-                status.append("rated")
+        status = _status(rated, alpha, settings.min_items)
         table = rated.assign(weight=norm_w, status=status, alpha=alpha, issued=issued)
         weight_rows.append(table)
         # per item: the group's unnormalised weights, renormalised over the members present
@@ -457,46 +605,55 @@ def build_ensemble(
         if zero.any():
             w_items[zero] = member_present[rows_idx][zero].astype(float)
             if not fallback:
-                notes.append(f"{quantity}, {horizon} week(s) ahead: on {int(zero.sum())} "
-                             "target(s) no member present has weight; equal weights used there")
+                notes.append(
+                    f"{quantity}, {horizon} week(s) ahead: on {int(zero.sum())} "
+                    "target(s) no member present has weight; equal weights used there"
+                )
         pool_w[rows_idx] = w_items
         if fallback:
-            notes.append(f"{quantity}, {horizon} week(s) ahead: no member is rated and above "
-                         "the cutoff, so the weighted pool uses equal weights")
+            notes.append(
+                f"{quantity}, {horizon} week(s) ahead: no member is rated and above "
+                "the cutoff, so the weighted pool uses equal weights"
+            )
         eq = None
         if dm_data is not None:
             eq = _score_virtual_expert(*dm_data, np.ones(members.size), settings)
-        summary_groups.append({
-            "quantity": quantity,
-            "horizon": int(horizon),
-            "alpha": alpha,
-            "alpha_mode": "auto" if settings.alpha == "auto" else "fixed",
-            "candidates": n_candidates,
-            "equal_weight_fallback": bool(fallback),
-            "pool_calibration": None if ve is None else ve.calibration,
-            "pool_information": None if ve is None else ve.information,
-            "pool_combined": None if ve is None else ve.combined,
-            "pool_items": 0 if ve is None else ve.n_items,
-            "equal_pool_calibration": None if eq is None else eq.calibration,
-            "equal_pool_information": None if eq is None else eq.information,
-            "members": [str(x) for x in members],
-            "rated": [str(x) for x in rated.loc[rated["rated"], "model"]],
-        })
+        summary_groups.append(
+            {
+                "quantity": quantity,
+                "horizon": int(horizon),
+                "alpha": alpha,
+                "alpha_mode": "auto" if settings.alpha == "auto" else "fixed",
+                "candidates": n_candidates,
+                "equal_weight_fallback": bool(fallback),
+                "pool_calibration": None if ve is None else ve.calibration,
+                "pool_information": None if ve is None else ve.information,
+                "pool_combined": None if ve is None else ve.combined,
+                "pool_items": 0 if ve is None else ve.n_items,
+                "equal_pool_calibration": None if eq is None else eq.calibration,
+                "equal_pool_information": None if eq is None else eq.information,
+                "members": [str(x) for x in members],
+                "rated": [str(x) for x in rated.loc[rated["rated"], "model"]],
+            }
+        )
 
     weighted = _pool_all(cube.values, cube.levels, pool_w, common, lower, upper)
-    equal = _pool_all(cube.values, cube.levels, member_present.astype(float), common, lower,
-                      upper)
+    equal = _pool_all(cube.values, cube.levels, member_present.astype(float), common, lower, upper)
     qmed = np.where(common, quantile_median(cube.values), np.nan)
     floor = ~cube.items["quantity"].isin(list(settings.signed)).to_numpy()[:, None]
     parts = []
-    for method, vals in (("weighted_pool", weighted), ("equal_pool", equal),
-                         ("quantile_median", qmed)):
+    for method, vals in (
+        ("weighted_pool", weighted),
+        ("equal_pool", equal),
+        ("quantile_median", qmed),
+    ):
         vals = np.where(floor & ~np.isnan(vals), np.maximum(vals, 0.0), vals)
         parts.append(_long(cube.items, method, issued, cube.levels, vals))
     ensemble = pd.concat(parts, ignore_index=True)[list(ENSEMBLE_COLUMNS)]
     ensemble["method"] = pd.Categorical(ensemble["method"], categories=list(METHODS))
-    ensemble = ensemble.sort_values(["method", "quantity", "region", "horizon", "week_ending",
-                                     "level"], kind="stable").reset_index(drop=True)
+    ensemble = ensemble.sort_values(
+        ["method", "quantity", "region", "horizon", "week_ending", "level"], kind="stable"
+    ).reset_index(drop=True)
     ensemble["method"] = ensemble["method"].astype(str)
     weights = pd.concat(weight_rows, ignore_index=True)[list(WEIGHT_COLUMNS)]
     robustness = _robustness(cube, pool_w, lower, upper, settings)
@@ -510,12 +667,26 @@ def build_ensemble(
         "groups": summary_groups,
         "notes": notes,
     }
-    return EnsembleResult(issued, ensemble, weights, robustness, summary, tuple(notes),
-                          tuple(str(x) for x in cube.models))
+    pool = PoolData(cube.items, cube.models, cube.levels, cube.values, pool_w, lower, upper)
+    return EnsembleResult(
+        issued,
+        ensemble,
+        weights,
+        robustness,
+        summary,
+        tuple(notes),
+        tuple(str(x) for x in cube.models),
+        pool,
+    )
 
 
-def _robustness(cube: _Cube, pool_w: np.ndarray, lower: np.ndarray, upper: np.ndarray,
-                settings: EnsembleSettings) -> pd.DataFrame:
+def _robustness(
+    cube: _Cube,
+    pool_w: np.ndarray,
+    lower: np.ndarray,
+    upper: np.ndarray,
+    settings: EnsembleSettings,
+) -> pd.DataFrame:
     """Leave-one-out change of the weighted pool's median and 90% width, per item and member."""
     lv = cube.levels
     need = [np.flatnonzero(np.abs(lv - t) < _TOL) for t in (0.05, 0.5, 0.95)]
@@ -552,14 +723,20 @@ def _robustness(cube: _Cube, pool_w: np.ndarray, lower: np.ndarray, upper: np.nd
     if not rows:
         return pd.DataFrame(columns=list(ROBUSTNESS_COLUMNS))
     out = pd.concat(rows, ignore_index=True)[list(ROBUSTNESS_COLUMNS)]
-    return out.sort_values(["quantity", "region", "horizon", "week_ending", "left_out"],
-                           kind="stable").reset_index(drop=True)
+    return out.sort_values(
+        ["quantity", "region", "horizon", "week_ending", "left_out"], kind="stable"
+    ).reset_index(drop=True)
 
 
-def with_baseline(forecasts: pd.DataFrame, observations: pd.DataFrame, *,
-                  issue_dates: Collection[pd.Timestamp], name: str,
-                  horizons: Sequence[int] = (1, 2, 3, 4),
-                  signed: Collection[str] = ()) -> tuple[pd.DataFrame, bool]:
+def with_baseline(
+    forecasts: pd.DataFrame,
+    observations: pd.DataFrame,
+    *,
+    issue_dates: Collection[pd.Timestamp],
+    name: str,
+    horizons: Sequence[int] = (1, 2, 3, 4),
+    signed: Collection[str] = (),
+) -> tuple[pd.DataFrame, bool]:
     """Add persistence forecasts named ``name`` for each issue date, unless already present.
 
     Each is built from the observations known on its issue date only. Returns the combined
@@ -575,9 +752,13 @@ def with_baseline(forecasts: pd.DataFrame, observations: pd.DataFrame, *,
         if known.empty:
             continue
         floors = sorted(set(known["quantity"]) - set(signed))
-        base = persistence_forecast(known[["region", "quantity", "week_ending", "value"]],
-                                    issued=pd.Timestamp(d), horizons=horizons, name=name,
-                                    nonnegative=floors)
+        base = persistence_forecast(
+            known[["region", "quantity", "week_ending", "value"]],
+            issued=pd.Timestamp(d),
+            horizons=horizons,
+            name=name,
+            nonnegative=floors,
+        )
         days = (base["week_ending"] - base["issued"]).dt.days.to_numpy()
         base = base.assign(horizon=np.ceil(days / 7).astype(np.int64))
         parts.append(base)

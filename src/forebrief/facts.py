@@ -330,6 +330,13 @@ def _range_text(lo: float, hi: float) -> str:
     return f"{format_count(lo)} to {format_count(hi)}"
 
 
+def _levels_text(levels: Sequence[float]) -> str:
+    """(0.05, 0.25, 0.5) -> '5, 25 and 50%'."""
+    pcts = [f"{lv * 100:g}" for lv in levels]
+    return (", ".join(pcts[:-1]) + " and " + pcts[-1] + "%") if len(pcts) > 1 else \
+        f"{pcts[0]}%"
+
+
 def _pct_off(value: float, centre: float, side: str) -> str:
     if centre <= 0 or not math.isfinite(value):
         return "n/a"
@@ -662,6 +669,7 @@ def build_facts(
         summary=summary, history=history,
         methods={
             "window_weeks": cfg.window, "alpha": cfg.alpha, "levels": list(cfg.levels),
+            "levels_text": _levels_text(cfg.levels),
             "overshoot": cfg.overshoot, "min_items": cfg.min_items, "power": cfg.power,
             "background": cfg.background, "baseline": cfg.baseline,
             "verdict_test_level": test_level,

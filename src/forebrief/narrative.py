@@ -160,13 +160,18 @@ def _outlook_section(facts: BriefingFacts) -> Section:
 def _certainty_section(facts: BriefingFacts) -> Section:
     paras = []
     bullets = []
-    for o in facts.outlook:
-        if not o.is_total:
+    for q in facts.quantities:
+        rows = sorted((o for o in facts.outlook if o.is_total and o.quantity == q["id"]),
+                      key=lambda o: o.horizon)
+        if not rows:
             continue
-        bullets.append(
-            f"{o.quantity_name}, {_weeks(o.horizon)}: the 9 in 10 range runs from "
-            f"{o.below_text} to {o.above_text} the central estimate; {o.agreement}."
-        )
+        first, last = rows[0], rows[-1]
+        text = (f"{q['name']}: the 9 in 10 range runs from {first.below_text} to "
+                f"{first.above_text} the central estimate {_weeks(first.horizon)}")
+        if last is not first:
+            text += (f", widening to {last.below_text} and {last.above_text} "
+                     f"{_weeks(last.horizon)}")
+        bullets.append(f"{text}; {first.agreement}.")
     for d in facts.summary.get("dominant", []):
         paras.append(
             f"{d['quantity_name']}: {d['model']} carries most of the weight in "
@@ -287,7 +292,7 @@ def _methods_section(facts: BriefingFacts) -> Section:
     alpha_text = ("chosen each week to give the combined forecast the best record"
                   if alpha == "auto" else f"fixed at {alpha}")
     paras = (
-        "Models are rated with Cooke's Classical Model: each model's 5, 25, 50, 75 and 95% "
+        f"Models are rated with Cooke's Classical Model: each model's {m.get('levels_text')} "
         f"quantiles over the last {m.get('window_weeks')} weeks of observed targets give a "
         "calibration score (a test of whether observations fall in each range as often as "
         "they should) and an information score (how narrow its ranges are). 'Reliable' means "

@@ -40,6 +40,7 @@ STAGES: tuple[str, ...] = (
     "building the ensembles",
     "back-testing",
     "facts and narrative",
+    "rendering",
     "writing the record",
 )
 
@@ -124,24 +125,31 @@ def run_briefing(
     baseline = table.loc[(table["model"] == cfg.baseline) & (table["issued"] == d)]
     baseline = baseline.drop(columns=["horizon"], errors="ignore").reset_index(drop=True)
     step("scoring the models")
-    history = history_scores(table, obs, issued=d, settings=settings)
+    # The members are scored (and the cutoff chosen) on a panel without the baseline, exactly
+    # as `forebrief ensemble` does; the baseline joins only for relative WIS, which compares
+    # weighted interval scores pairwise and does not depend on the panel.
+    history = history_scores(forecasts, obs, issued=d, settings=settings)
     scores = None
     if history.as_of is not None:
         alpha = 0.05 if cfg.alpha == "auto" else float(cfg.alpha)
-        scores = score_forecasts(
-            table.loc[table["issued"] < d], history.observations, as_of=history.as_of,
-            settings=ScoreSettings(window=cfg.window, alpha=alpha, baseline=cfg.baseline,
-                                   levels=cfg.levels, overshoot=cfg.overshoot,
-                                   background=cfg.background, power=cfg.power),
-        )
+        score_settings = ScoreSettings(window=cfg.window, alpha=alpha, baseline=cfg.baseline,
+                                       levels=cfg.levels, overshoot=cfg.overshoot,
+                                       background=cfg.background, power=cfg.power)
+        members = forecasts.loc[(forecasts["issued"] < d)
+                                & (forecasts["model"] != cfg.baseline)]
+        scores = score_forecasts(members, history.observations, as_of=history.as_of,
+                                 settings=score_settings)
+        with_base = score_forecasts(table.loc[table["issued"] < d], history.observations,
+                                    as_of=history.as_of, settings=score_settings)
+        scores = _with_relative(scores, with_base, cfg.baseline)
     step("building the ensembles")
-    ens = build_ensemble(table, obs, issued=d, settings=settings, history=history)
+    ens = build_ensemble(forecasts, obs, issued=d, settings=settings, history=history)
     step("back-testing")
     start = d - pd.Timedelta(days=7 * cfg.backtest_weeks)
     end = d - pd.Timedelta(days=1)
     bt = None
-    if issue_dates_between(table, start, end, exclude={cfg.baseline}):
-        bt = backtest(table, obs, start=start, end=end, settings=settings)
+    if issue_dates_between(forecasts, start, end, exclude={cfg.baseline}):
+        bt = backtest(forecasts, obs, start=start, end=end, settings=settings)
     step("facts and narrative")
     revisions = pd.DataFrame(columns=["region", "quantity", "week_ending", "value_then",
                                       "value_now", "change"])
@@ -158,3 +166,31 @@ def run_briefing(
     text = narrative_text(facts, narrative)
     return BriefingRun(d, cfg, inputs, scores, ens, bt, facts, narrative, text, baseline,
                        generated)
+
+
+def _with_relative(scores: ScoreResult, with_base: ScoreResult, baseline: str) -> ScoreResult:
+    """Members' scores (panel without the baseline) with relative WIS against the baseline.
+
+    The baseline's own row comes from the run that includes it (its Classical Model columns use
+    that panel), so leadership can see it beside the models.
+    """
+    from dataclasses import replace
+
+    def merge(ours: pd.DataFrame, theirs: pd.DataFrame, keys: list[str]) -> pd.DataFrame:
+        rel = theirs[[*keys, "relative_wis"]]
+        out = ours.drop(columns=["relative_wis"]).merge(rel, on=keys, how="left")
+        out = out[list(ours.columns)]
+        base = theirs.loc[theirs["model"] == baseline, list(ours.columns)].assign(
+            weight=float("nan"))  # the baseline is not a member: it has no weight
+        return pd.concat([out, base], ignore_index=True).sort_values(
+            keys, kind="stable").reset_index(drop=True)
+
+    keys = ["quantity", "horizon", "model"]
+    return replace(
+        scores,
+        by_model=merge(scores.by_model, with_base.by_model, keys),
+        by_model_region=merge(scores.by_model_region, with_base.by_model_region,
+                              ["quantity", "horizon", "region", "model"]),
+        by_item=pd.concat([scores.by_item, with_base.by_item.loc[
+            with_base.by_item["model"] == baseline]], ignore_index=True),
+    )

@@ -9,6 +9,7 @@ from __future__ import annotations
 import os
 from collections.abc import Collection, Mapping, Sequence
 from dataclasses import dataclass, replace
+from pathlib import Path
 from typing import TypeVar
 
 import pandas as pd
@@ -53,8 +54,20 @@ class Inputs:
         return CheckReport(self.problems, self.forecasts, self.observations)
 
 
+def input_label(path: Path, label_root: Path | None) -> str:
+    """How an input file is named in messages and in the record: relative to ``label_root``
+    (the configuration's folder) when it lies below it, else the path as given."""
+    if label_root is not None:
+        try:
+            return path.resolve().relative_to(label_root.resolve()).as_posix()
+        except ValueError:
+            pass
+    return str(path)
+
+
 def _read_all(spec: PathSpec, columns: Mapping[str, str] | None,
-              kind: str) -> tuple[list[RawFile], list[Problem], pd.DataFrame]:
+              kind: str, label_root: Path | None = None,
+              ) -> tuple[list[RawFile], list[Problem], pd.DataFrame]:
     """Read every file of ``spec``; a file that cannot be read is reported and excluded.
 
     One team's broken file must not stop the others: it becomes an error ``Problem`` and an
@@ -65,11 +78,13 @@ def _read_all(spec: PathSpec, columns: Mapping[str, str] | None,
     excluded: list[dict[str, str]] = []
     first_error: InputError | None = None
     for path in resolve_inputs(spec):
+        label = input_label(path, label_root)
         try:
-            raws.append(read_raw_table(path, columns=columns))
+            raw = read_raw_table(path, columns=columns)
+            raws.append(raw if raw.label == label else replace(raw, label=label))
         except InputError as exc:
             first_error = first_error or exc
-            label = str(path)
+            exc = InputError(str(exc).replace(str(path), label, 1))
             text = str(exc).removeprefix(f"{label}: ")
             message, sep, fix = text.rpartition("; fix: ")
             if not sep:
@@ -94,17 +109,19 @@ def _with_unreadable(validated: _V, problems: list[Problem], excluded: pd.DataFr
 
 
 def load_forecasts(spec: PathSpec, *, columns: Mapping[str, str] | None = None,
-                   signed: Collection[str] = ()) -> ValidatedForecasts:
+                   signed: Collection[str] = (),
+                   label_root: Path | None = None) -> ValidatedForecasts:
     """Read every forecast file named by ``spec`` (files, folders, globs) and validate them."""
-    raws, problems, excluded = _read_all(spec, columns, "forecast")
+    raws, problems, excluded = _read_all(spec, columns, "forecast", label_root)
     return _with_unreadable(validate_forecasts(raws, signed=signed), problems, excluded)
 
 
 def load_observations(spec: PathSpec, *, columns: Mapping[str, str] | None = None,
                       signed: Collection[str] = (),
-                      as_of: pd.Timestamp | None = None) -> ValidatedObservations:
+                      as_of: pd.Timestamp | None = None,
+                      label_root: Path | None = None) -> ValidatedObservations:
     """Read and validate observation files (with optional ``reported`` vintages)."""
-    raws, problems, excluded = _read_all(spec, columns, "observation")
+    raws, problems, excluded = _read_all(spec, columns, "observation", label_root)
     return _with_unreadable(validate_observations(raws, signed=signed, as_of=as_of), problems,
                             excluded)
 
@@ -112,9 +129,15 @@ def load_observations(spec: PathSpec, *, columns: Mapping[str, str] | None = Non
 def load_inputs(forecasts: PathSpec, observations: PathSpec, *,
                 columns: Mapping[str, str] | None = None,
                 signed: Collection[str] = (),
-                as_of: pd.Timestamp | None = None) -> Inputs:
-    """Read and validate both inputs, and cross-check them."""
-    f = load_forecasts(forecasts, columns=columns, signed=signed)
-    o = load_observations(observations, columns=columns, signed=signed, as_of=as_of)
+                as_of: pd.Timestamp | None = None,
+                label_root: Path | None = None) -> Inputs:
+    """Read and validate both inputs, and cross-check them.
+
+    With ``label_root`` files are named relative to it (the configuration's folder), so a
+    record names its inputs the same way wherever the folder is later unpacked.
+    """
+    f = load_forecasts(forecasts, columns=columns, signed=signed, label_root=label_root)
+    o = load_observations(observations, columns=columns, signed=signed, as_of=as_of,
+                          label_root=label_root)
     problems = (*f.problems, *o.problems, *cross_check(f, o))
     return Inputs(f, o, problems)

@@ -81,3 +81,22 @@ def write_table(frame: pd.DataFrame, path: Path) -> Path:
         raise InputError(f"{path}: cannot be written ({exc.strerror}); "
                          "fix: choose a folder you can write to") from None
     raise InputError(f"{path}: unknown file type; fix: end the name in .csv or .parquet")
+
+
+def csv_bytes(frame: pd.DataFrame, *, float_format: str = "%.10g") -> bytes:
+    """A table as the exact bytes :func:`forebrief.io.tables.write_csv` writes."""
+    import io
+
+    out = frame.copy()
+    for col in out.columns:
+        if pd.api.types.is_datetime64_any_dtype(out[col]):
+            out[col] = out[col].dt.strftime("%Y-%m-%d")
+    buf = io.StringIO()
+    out.to_csv(buf, index=False, lineterminator="\n", float_format=float_format)
+    return buf.getvalue().encode("utf-8")
+
+
+def json_bytes(payload: Any) -> bytes:
+    """JSON exactly as :func:`write_json` writes it."""
+    text = json.dumps(json_ready(payload), indent=2, ensure_ascii=False, allow_nan=False)
+    return (text + "\n").encode("utf-8")

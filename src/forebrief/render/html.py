@@ -49,11 +49,25 @@ def _png_size(png: bytes) -> tuple[int, int]:
     return int(w), int(h)
 
 
+#: Figure kinds the printed briefing keeps, for the lead quantity only (to stay within a few
+#: pages); the screen version shows every figure.
+PRINT_KINDS = ("fan", "outlook", "reliability", "track")
+
+
 def figure_views(charts: Sequence[Any], *, images: Literal["png", "svg"] = "png",
-                 dpi: int = 200) -> list[FigureView]:
-    """Turn chart specs (key, title, caption, alt, png, svg) into embeddable figures."""
+                 dpi: int = 200, only_quantity: str | None = None) -> list[FigureView]:
+    """Turn chart specs (key, title, caption, alt, png, svg) into embeddable figures.
+
+    With ``only_quantity`` (the printed briefing) only the lead quantity's figures of the
+    kinds in :data:`PRINT_KINDS` are kept.
+    """
     out = []
     for c in charts:
+        kind, _, rest = c.key.partition("_")
+        if only_quantity is not None and (kind not in PRINT_KINDS
+                                          or not (rest == only_quantity
+                                                  or rest.startswith(only_quantity + "_"))):
+            continue
         w, h = _png_size(c.png)
         if images == "svg":
             src = "data:image/svg+xml;base64," + base64.b64encode(c.svg.encode("utf-8")).decode()
@@ -136,18 +150,33 @@ def _outlook_tables(facts: BriefingFacts) -> list[dict[str, Any]]:
 _VERDICT_CLASS = {"reliable": "reliable", "not yet rated": "unrated"}
 
 
-def _trust_tables(facts: BriefingFacts) -> list[dict[str, Any]]:
-    out = []
-    for q in facts.quantities:
-        rows = [v for v in facts.verdicts if v.quantity == q["id"]]
-        if not rows:
-            continue
-        out.append({
-            "caption": f"{q['name']}: each model's recent record",
-            "rows": [{**v.__dict__, "verdict_class": _VERDICT_CLASS.get(v.verdict, "warning")}
-                     for v in rows],
-        })
-    return out
+def _trust_table(facts: BriefingFacts) -> dict[str, Any]:
+    """One row per model, one group of cells per quantity: verdict, weight, relative error."""
+    quantities = [q for q in facts.quantities if any(v.quantity == q["id"]
+                                                     for v in facts.verdicts)]
+    models: list[str] = []
+    for v in facts.verdicts:
+        if v.model not in models:
+            models.append(v.model)
+    by_key = {(v.model, v.quantity): v for v in facts.verdicts}
+    rows = []
+    for m in models:
+        cells = []
+        for q in quantities:
+            v = by_key.get((m, q["id"]))
+            cells.append(None if v is None else {
+                **v.__dict__, "verdict_class": _VERDICT_CLASS.get(v.verdict, "warning")})
+        rows.append({"model": m, "cells": cells})
+    lead = facts.summary.get("lead_quantity")
+    why = [v for v in facts.verdicts if v.quantity == lead]
+    return {
+        "caption": "Each model's recent record: verdict, weight next week, and error "
+                   "relative to \"same as last week\"",
+        "quantities": [q["name"] for q in quantities],
+        "rows": rows,
+        "why_title": next((q["name"] for q in quantities if q["id"] == lead), ""),
+        "why": why,
+    }
 
 
 def _track_table(facts: BriefingFacts) -> dict[str, Any]:
@@ -182,9 +211,11 @@ def render_html(
         narrative=narrative,
         sections=sections,
         outlook_tables=_outlook_tables(facts),
-        trust_tables=_trust_tables(facts),
+        trust=_trust_table(facts),
         track_table=_track_table(facts),
-        charts=figure_views(charts, images=images),
+        charts=figure_views(charts, images=images,
+                            only_quantity=facts.summary.get("lead_quantity") if for_print
+                            else None),
         for_print=for_print,
         paper="letter" if paper == "letter" else "A4",
     )

@@ -2,6 +2,9 @@
 
 from __future__ import annotations
 
+import datetime as dt
+import io
+from collections.abc import Mapping
 from typing import Any
 
 from forebrief.errors import ConfigError
@@ -33,15 +36,21 @@ def _fetcher_class() -> Any:
     return OfflineFetcher
 
 
-def OfflineFetcher() -> Any:  # noqa: N802 - a factory that reads like the class
+def OfflineFetcher() -> Any:
     return _fetcher_class()()
 
 
-def render_pdf(html: str, *, pdf_variant: str | None = None, attachments: Any = None,
-               identifier: bytes | None = None) -> bytes:
-    """Render print HTML to PDF bytes (deterministic for the same input)."""
+def render_pdf(html: str, *, pdf_variant: str | None = None,
+               attachments: Mapping[str, bytes] | None = None,
+               identifier: bytes | None = None,
+               created: dt.datetime | None = None) -> bytes:
+    """Render print HTML to PDF bytes, deterministic for the same input.
+
+    ``pdf_variant="pdf/a-3b"`` gives the archival PDF/A-3b; ``attachments`` (name -> bytes) are
+    embedded as associated files with relationship "Data" (ISO 19005-3 allows any format).
+    """
     try:
-        from weasyprint import HTML
+        from weasyprint import HTML, Attachment
     except ImportError as exc:  # pragma: no cover
         raise ConfigError("WeasyPrint is needed for the PDF; fix: pip install weasyprint") \
             from exc
@@ -50,7 +59,12 @@ def render_pdf(html: str, *, pdf_variant: str | None = None, attachments: Any = 
     if pdf_variant:
         kwargs["pdf_variant"] = pdf_variant
     if attachments:
-        kwargs["attachments"] = attachments
+        kwargs["attachments"] = [
+            Attachment(file_obj=io.BytesIO(data), name=name, relationship="Data",
+                       description=f"{name}, as archived in the record",
+                       created=created, modified=created)
+            for name, data in attachments.items()
+        ]
     if identifier:
         kwargs["pdf_identifier"] = identifier
     out = doc.write_pdf(**kwargs)
