@@ -29,7 +29,7 @@ import textwrap
 from collections.abc import Iterator, Mapping, Sequence
 from contextlib import contextmanager
 from dataclasses import dataclass, field
-from typing import Any
+from typing import Any, Literal
 
 import matplotlib
 import matplotlib.colors as mcolors
@@ -74,17 +74,39 @@ __all__ = [
 #: The eight Okabe-Ito colours in their published order (Okabe & Ito 2008, "Color Universal
 #: Design"). matplotlib >= 3.11 ships them as the ``okabe_ito`` colour sequence; older versions
 #: get these hex values.
-_OKABE_ITO_NAMES = ("black", "orange", "sky blue", "bluish green", "yellow", "blue",
-                    "vermillion", "reddish purple")
-_OKABE_ITO_HEX = ("#000000", "#e69f00", "#56b4e9", "#009e73", "#f0e442", "#0072b2",
-                  "#d55e00", "#cc79a7")
+_OKABE_ITO_NAMES = (
+    "black",
+    "orange",
+    "sky blue",
+    "bluish green",
+    "yellow",
+    "blue",
+    "vermillion",
+    "reddish purple",
+)
+_OKABE_ITO_HEX = (
+    "#000000",
+    "#e69f00",
+    "#56b4e9",
+    "#009e73",
+    "#f0e442",
+    "#0072b2",
+    "#d55e00",
+    "#cc79a7",
+)
 
 
 def _okabe_ito() -> dict[str, str]:
-    seq = matplotlib.color_sequences.get("okabe_ito") if hasattr(
-        matplotlib, "color_sequences") else None
-    values = ([mcolors.to_hex(c) for c in seq] if seq is not None and len(seq) == 8
-              else list(_OKABE_ITO_HEX))
+    seq = (
+        matplotlib.color_sequences.get("okabe_ito")
+        if hasattr(matplotlib, "color_sequences")
+        else None
+    )
+    values = (
+        [mcolors.to_hex(c) for c in seq]
+        if seq is not None and len(seq) == 8
+        else list(_OKABE_ITO_HEX)
+    )
     return dict(zip(_OKABE_ITO_NAMES, values, strict=True))
 
 
@@ -180,14 +202,17 @@ _STYLE: Mapping[str, Any] = {
 def horizon_colors(horizons: Sequence[int]) -> dict[int, str]:
     """One cividis colour per horizon (ordered, darkest first)."""
     cmap = matplotlib.colormaps["cividis"]
-    stops = CIVIDIS_STOPS if len(horizons) <= len(CIVIDIS_STOPS) else np.linspace(
-        0.05, 0.85, len(horizons))
+    stops = (
+        CIVIDIS_STOPS
+        if len(horizons) <= len(CIVIDIS_STOPS)
+        else np.linspace(0.05, 0.85, len(horizons))
+    )
     return {h: mcolors.to_hex(cmap(s)) for h, s in zip(sorted(horizons), stops, strict=False)}
 
 
 @contextmanager
 def _style() -> Iterator[None]:
-    with matplotlib.rc_context(_STYLE):
+    with matplotlib.rc_context(dict(_STYLE)):  # type: ignore[arg-type]
         yield
 
 
@@ -197,7 +222,7 @@ def _new_axes(size: tuple[float, float]) -> Axes:
     return fig.add_subplot()
 
 
-def _style_axes(ax: Axes, *, grid_axis: str = "y") -> None:
+def _style_axes(ax: Axes, *, grid_axis: Literal["both", "x", "y"] = "y") -> None:
     """Apply the house look to an Axes the caller may have made outside our rc settings."""
     for side in ("top", "right"):
         ax.spines[side].set_visible(False)
@@ -226,8 +251,9 @@ def _quantity_ids(facts: BriefingFacts) -> list[str]:
 def _check_quantity(facts: BriefingFacts, quantity: str) -> None:
     ids = _quantity_ids(facts)
     if quantity not in ids:
-        raise ValueError(f"quantity must be one of {', '.join(repr(i) for i in ids)}; "
-                         f"got {quantity!r}")
+        raise ValueError(
+            f"quantity must be one of {', '.join(repr(i) for i in ids)}; got {quantity!r}"
+        )
 
 
 def _quantity_info(facts: BriefingFacts, quantity: str) -> Mapping[str, str]:
@@ -235,15 +261,23 @@ def _quantity_info(facts: BriefingFacts, quantity: str) -> Mapping[str, str]:
     return next(q for q in facts.quantities if q["id"] == quantity)
 
 
-def _outlook_rows(facts: BriefingFacts, region: str, quantity: str,
-                  horizons: Sequence[int] | None = None) -> list[OutlookRow]:
+def _outlook_rows(
+    facts: BriefingFacts, region: str, quantity: str, horizons: Sequence[int] | None = None
+) -> list[OutlookRow]:
     _check_quantity(facts, quantity)
-    rows = [o for o in facts.outlook if o.region == region and o.quantity == quantity
-            and (horizons is None or o.horizon in horizons)]
+    rows = [
+        o
+        for o in facts.outlook
+        if o.region == region
+        and o.quantity == quantity
+        and (horizons is None or o.horizon in horizons)
+    ]
     if not rows:
         have = sorted({o.region for o in facts.outlook if o.quantity == quantity})
-        raise ValueError(f"region must be one of {', '.join(repr(r) for r in have)} for "
-                         f"quantity {quantity!r}; got {region!r}")
+        raise ValueError(
+            f"region must be one of {', '.join(repr(r) for r in have)} for "
+            f"quantity {quantity!r}; got {region!r}"
+        )
     return sorted(rows, key=lambda o: o.horizon)
 
 
@@ -260,34 +294,67 @@ def _baseline_label(facts: BriefingFacts) -> str:
 _BAND_ALPHA = {90: 0.2, 50: 0.45}
 
 
-def _fan_handles(facts: BriefingFacts, *, provisional: bool, baseline: bool,
-                 threshold_label: str | None, history: bool,
-                 compact: bool = False) -> list[Any]:
+def _fan_handles(
+    facts: BriefingFacts,
+    *,
+    provisional: bool,
+    baseline: bool,
+    threshold_label: str | None,
+    history: bool,
+    compact: bool = False,
+) -> list[Any]:
     c = PALETTE["weighted_pool"]
     handles: list[Any] = []
     if history:
-        handles.append(Line2D([], [], color=PALETTE["observed"], marker="o", ms=3.5, lw=1.2,
-                              label="observed"))
+        handles.append(
+            Line2D([], [], color=PALETTE["observed"], marker="o", ms=3.5, lw=1.2, label="observed")
+        )
     if provisional:
-        handles.append(Line2D([], [], color=PALETTE["observed"], marker="o", ms=4.5, lw=0,
-                              mfc="white", mew=1.0,
-                              label="provisional (may be revised)" if compact else
-                              "observed, provisional\n(may be revised)"))
+        handles.append(
+            Line2D(
+                [],
+                [],
+                color=PALETTE["observed"],
+                marker="o",
+                ms=4.5,
+                lw=0,
+                mfc="white",
+                mew=1.0,
+                label="provisional (may be revised)"
+                if compact
+                else "observed, provisional\n(may be revised)",
+            )
+        )
     handles += [
         Line2D([], [], color=c, marker="o", ms=3.5, lw=1.8, label="combined forecast, median"),
-        Patch(facecolor=mcolors.to_rgba(c, _BAND_ALPHA[50]), lw=0,
-              label="50% range (1 in 2 chance)"),
-        Patch(facecolor=mcolors.to_rgba(c, _BAND_ALPHA[90]), lw=0,
-              label="90% range (9 in 10 chance)"),
+        Patch(
+            facecolor=mcolors.to_rgba(c, _BAND_ALPHA[50]), lw=0, label="50% range (1 in 2 chance)"
+        ),
+        Patch(
+            facecolor=mcolors.to_rgba(c, _BAND_ALPHA[90]), lw=0, label="90% range (9 in 10 chance)"
+        ),
     ]
     if baseline:
-        handles.append(Line2D([], [], color=PALETTE["baseline"], ls="--", marker="s", ms=3.5,
-                              mfc="white", lw=1.2, label=_baseline_label(facts)))
+        handles.append(
+            Line2D(
+                [],
+                [],
+                color=PALETTE["baseline"],
+                ls="--",
+                marker="s",
+                ms=3.5,
+                mfc="white",
+                lw=1.2,
+                label=_baseline_label(facts),
+            )
+        )
     if threshold_label:
-        handles.append(Line2D([], [], color=PALETTE["threshold"], ls="-.", lw=1.2,
-                              label=threshold_label))
-    handles.append(Line2D([], [], color=INK_SOFT, ls=":", lw=1.0,
-                          label=f"issued {facts.issued_text}"))
+        handles.append(
+            Line2D([], [], color=PALETTE["threshold"], ls="-.", lw=1.2, label=threshold_label)
+        )
+    handles.append(
+        Line2D([], [], color=INK_SOFT, ls=":", lw=1.0, label=f"issued {facts.issued_text}")
+    )
     return handles
 
 
@@ -319,8 +386,9 @@ def fan_chart(
     return ax
 
 
-def _draw_fan(facts: BriefingFacts, rows: list[OutlookRow], ax: Axes, *, legend: bool,
-              compact: bool) -> None:
+def _draw_fan(
+    facts: BriefingFacts, rows: list[OutlookRow], ax: Axes, *, legend: bool, compact: bool
+) -> None:
     _style_axes(ax)
     first = rows[0]
     colour = PALETTE["weighted_pool"]
@@ -335,12 +403,37 @@ def _draw_fan(facts: BriefingFacts, rows: list[OutlookRow], ax: Axes, *, legend:
         band_x = np.array([weeks[0] - np.timedelta64(2, "D"), weeks[0] + np.timedelta64(2, "D")])
         lo50, hi50, lo90, hi90 = (np.repeat(a, 2) for a in (lo50, hi50, lo90, hi90))
     # nested bands, widest first, one hue with rising opacity
-    ax.fill_between(band_x, lo90, hi90, color=colour, alpha=_BAND_ALPHA[90], lw=0,
-                    gid="band90", label="90% range (9 in 10 chance)")
-    ax.fill_between(band_x, lo50, hi50, color=colour, alpha=_BAND_ALPHA[50], lw=0,
-                    gid="band50", label="50% range (1 in 2 chance)")
-    ax.plot(weeks, med, color=colour, lw=1.8, marker="o", ms=3.5, gid="median",
-            label="combined forecast, median", zorder=4)
+    ax.fill_between(
+        band_x,
+        lo90,
+        hi90,
+        color=colour,
+        alpha=_BAND_ALPHA[90],
+        lw=0,
+        gid="band90",
+        label="90% range (9 in 10 chance)",
+    )
+    ax.fill_between(
+        band_x,
+        lo50,
+        hi50,
+        color=colour,
+        alpha=_BAND_ALPHA[50],
+        lw=0,
+        gid="band50",
+        label="50% range (1 in 2 chance)",
+    )
+    ax.plot(
+        weeks,
+        med,
+        color=colour,
+        lw=1.8,
+        marker="o",
+        ms=3.5,
+        gid="median",
+        label="combined forecast, median",
+        zorder=4,
+    )
 
     tops = [float(np.nanmax(hi90))]
     hist = facts.history.get(f"{first.region}|{first.quantity}") if facts.history else None
@@ -351,12 +444,31 @@ def _draw_fan(facts: BriefingFacts, rows: list[OutlookRow], ax: Axes, *, legend:
         prov = np.array(hist.get("provisional") or [False] * hv.size, dtype=bool)
         has_prov = bool(prov.any())
         ax.plot(hw, hv, color=PALETTE["observed"], lw=1.2, zorder=5, gid="observed-line")
-        ax.plot(hw[~prov], hv[~prov], lw=0, marker="o", ms=3.2, color=PALETTE["observed"],
-                zorder=6, gid="observed", label="observed")
+        ax.plot(
+            hw[~prov],
+            hv[~prov],
+            lw=0,
+            marker="o",
+            ms=3.2,
+            color=PALETTE["observed"],
+            zorder=6,
+            gid="observed",
+            label="observed",
+        )
         if has_prov:
-            ax.plot(hw[prov], hv[prov], lw=0, marker="o", ms=4.2, mfc="white", mew=1.0,
-                    color=PALETTE["observed"], zorder=6, gid="provisional",
-                    label="observed, provisional (may be revised)")
+            ax.plot(
+                hw[prov],
+                hv[prov],
+                lw=0,
+                marker="o",
+                ms=4.2,
+                mfc="white",
+                mew=1.0,
+                color=PALETTE["observed"],
+                zorder=6,
+                gid="provisional",
+                label="observed, provisional (may be revised)",
+            )
         tops.append(float(np.nanmax(hv)))
         x_lo = hw[0]
     else:
@@ -366,11 +478,22 @@ def _draw_fan(facts: BriefingFacts, rows: list[OutlookRow], ax: Axes, *, legend:
     has_base = any(b is not None for b in base)
     if has_base:
         bv = np.array([np.nan if b is None else b for b in base], dtype=float)
-        ax.plot(weeks, bv, color=PALETTE["baseline"], ls="--", marker="s", ms=3.5,
-                mfc="white", lw=1.2, zorder=3, gid="baseline", label=_baseline_label(facts))
+        ax.plot(
+            weeks,
+            bv,
+            color=PALETTE["baseline"],
+            ls="--",
+            marker="s",
+            ms=3.5,
+            mfc="white",
+            lw=1.2,
+            zorder=3,
+            gid="baseline",
+            label=_baseline_label(facts),
+        )
         tops.append(float(np.nanmax(bv)))
 
-    issued = np.datetime64(facts.issued, "D")
+    issued = float(mdates.date2num(np.datetime64(facts.issued, "D")))
     ax.axvline(issued, color=INK_SOFT, ls=":", lw=1.0, gid="issued", zorder=2)
 
     top = max(tops) if tops else 1.0
@@ -382,19 +505,36 @@ def _draw_fan(facts: BriefingFacts, rows: list[OutlookRow], ax: Axes, *, legend:
         # show the line when it is within reach of the data; else say where it is
         on_scale = thr <= 1.6 * top
         top = max(top, thr) if on_scale else top
-        text = (first.threshold_text or "") if compact else \
-            f"{thr_label}: {first.threshold_text}"
+        text = (first.threshold_text or "") if compact else f"{thr_label}: {first.threshold_text}"
         if on_scale:
-            ax.annotate(text, (0.01, thr), xycoords=ax.get_yaxis_transform(),
-                        xytext=(0, 2.5), textcoords="offset points", ha="left", va="bottom",
-                        fontsize=6.5 if compact else 7.5, color=PALETTE["threshold"],
-                        gid="threshold-label", zorder=7)
+            ax.annotate(
+                text,
+                (0.01, thr),
+                xycoords=ax.get_yaxis_transform(),
+                xytext=(0, 2.5),
+                textcoords="offset points",
+                ha="left",
+                va="bottom",
+                fontsize=6.5 if compact else 7.5,
+                color=PALETTE["threshold"],
+                gid="threshold-label",
+                zorder=7,
+            )
         else:
-            ax.text(0.01, 0.985, f"\u2191 {text} (above this scale)" if compact else
-                    f"\u2191 {text}, above the top of this chart",
-                    transform=ax.transAxes, ha="left", va="top",
-                    fontsize=6.5 if compact else 7.5, color=PALETTE["threshold"],
-                    gid="threshold-label", zorder=7)
+            ax.text(
+                0.01,
+                0.985,
+                f"\u2191 {text} (above this scale)"
+                if compact
+                else f"\u2191 {text}, above the top of this chart",
+                transform=ax.transAxes,
+                ha="left",
+                va="top",
+                fontsize=6.5 if compact else 7.5,
+                color=PALETTE["threshold"],
+                gid="threshold-label",
+                zorder=7,
+            )
     ax.set_ylim(0, top * (1.12 if compact else 1.08))
     ax.set_xlim(x_lo - np.timedelta64(4, "D"), weeks[-1] + np.timedelta64(4, "D"))
 
@@ -404,24 +544,29 @@ def _draw_fan(facts: BriefingFacts, rows: list[OutlookRow], ax: Axes, *, legend:
     if compact:
         # a fixed title and label position skip matplotlib's per-draw search for them,
         # which dominates the cost of a grid of dozens of panels
-        ax.yaxis.set_major_locator(MaxNLocator(nbins=5, steps=[1, 2, 5, 10],
-                                                   integer=True))
+        ax.yaxis.set_major_locator(MaxNLocator(nbins=5, steps=[1, 2, 5, 10], integer=True))
         ax.set_title(first.region_name, fontsize=8, y=1.0, pad=4.0)
         ax.xaxis.set_label_coords(0.5, -0.2)
         ax.yaxis.set_label_coords(-0.25, 0.5)
         ax.tick_params(labelsize=6.5)
     else:
-        ax.yaxis.set_major_locator(MaxNLocator(nbins=7, steps=[1, 2, 5, 10],
-                                                   integer=True))
-        ax.set_title(f"{first.region_name}: {_lower_first(first.quantity_name)}", y=1.0,
-                     pad=6.0)
+        ax.yaxis.set_major_locator(MaxNLocator(nbins=7, steps=[1, 2, 5, 10], integer=True))
+        ax.set_title(f"{first.region_name}: {_lower_first(first.quantity_name)}", y=1.0, pad=6.0)
         ax.set_ylabel(first.unit)
         ax.set_xlabel("week ending")
     if legend:
-        ax.legend(handles=_fan_handles(facts, provisional=has_prov, baseline=has_base,
-                                       threshold_label=thr_label,
-                                       history=bool(hist and hist.get("week_ending"))),
-                  loc="upper left", bbox_to_anchor=(1.01, 1.0), borderaxespad=0.0)
+        ax.legend(
+            handles=_fan_handles(
+                facts,
+                provisional=has_prov,
+                baseline=has_base,
+                threshold_label=thr_label,
+                history=bool(hist and hist.get("week_ending")),
+            ),
+            loc="upper left",
+            bbox_to_anchor=(1.01, 1.0),
+            borderaxespad=0.0,
+        )
 
 
 def outlook_grid(
@@ -440,8 +585,9 @@ def outlook_grid(
     if ncols < 1:
         raise ValueError(f"ncols must be at least 1; got {ncols}")
     present = {o.region for o in facts.outlook if o.quantity == quantity}
-    regions = [r for r in facts.regions if r["id"] in present
-               and (include_total or not r["is_total"])]
+    regions = [
+        r for r in facts.regions if r["id"] in present and (include_total or not r["is_total"])
+    ]
     if not regions:
         regions = [r for r in facts.regions if r["id"] in present]
     n = len(regions)
@@ -449,14 +595,16 @@ def outlook_grid(
     nrows = max(1, -(-n // cols))
     info = _quantity_info(facts, quantity)
     panels = [_outlook_rows(facts, str(r["id"]), quantity) for r in regions]
-    hists = [facts.history.get(f"{r['id']}|{quantity}") if facts.history else None
-             for r in regions]
+    hists = [facts.history.get(f"{r['id']}|{quantity}") if facts.history else None for r in regions]
     thr_label = next((p[0].threshold_label for p in panels if p[0].threshold_label), None)
     handles = _fan_handles(
-        facts, history=True, compact=True,
+        facts,
+        history=True,
+        compact=True,
         provisional=any(bool(h and any(h.get("provisional") or [])) for h in hists),
         baseline=any(o.baseline_median is not None for p in panels for o in p),
-        threshold_label=f"{thr_label} (value beside it)" if thr_label else None)
+        threshold_label=f"{thr_label} (value beside it)" if thr_label else None,
+    )
     # fixed margins in inches instead of constrained layout: with dozens of panels the
     # layout solver would cost more than the drawing (compact panels have known label sizes);
     # the legend on top is measured first and the panels start below it
@@ -464,21 +612,42 @@ def outlook_grid(
     with _style():
         fig = Figure(figsize=(COLUMN_WIDTH, PANEL_HEIGHT * nrows + 1.0))
         FigureCanvasAgg(fig)
-        leg = fig.legend(handles=handles, loc="upper left", ncols=3, fontsize=7,
-                         columnspacing=1.6, handlelength=2.2, borderaxespad=0.0)
-        leg_h = leg.get_window_extent(fig.canvas.get_renderer()).height / fig.dpi
+        leg = fig.legend(
+            handles=handles,
+            loc="upper left",
+            ncols=3,
+            fontsize=7,
+            columnspacing=1.6,
+            handlelength=2.2,
+            borderaxespad=0.0,
+        )
+        leg_h = leg.get_window_extent(_renderer(fig)).height / fig.dpi
         head = leg_h + 0.5
         height = round(head + foot + PANEL_HEIGHT * nrows, 2)
         fig.set_size_inches(COLUMN_WIDTH, height)
         leg.set_bbox_to_anchor((0.1 / COLUMN_WIDTH, 1 - 0.06 / height))
-        fig.text(0.1 / COLUMN_WIDTH, 1 - (leg_h + 0.14) / height,
-                 f"Each panel: {info['unit']}, on its own scale.", fontsize=7, color=INK_SOFT,
-                 ha="left", va="top", gid="grid-note")
+        fig.text(
+            0.1 / COLUMN_WIDTH,
+            1 - (leg_h + 0.14) / height,
+            f"Each panel: {info['unit']}, on its own scale.",
+            fontsize=7,
+            color=INK_SOFT,
+            ha="left",
+            va="top",
+            gid="grid-note",
+        )
         aw = (COLUMN_WIDTH - left - right - gap_w * (cols - 1)) / cols
         ah = (height - head - foot - gap_h * (nrows - 1)) / nrows
-        grid = fig.add_gridspec(nrows, cols, left=left / COLUMN_WIDTH,
-                                right=1 - right / COLUMN_WIDTH, bottom=foot / height,
-                                top=1 - head / height, wspace=gap_w / aw, hspace=gap_h / ah)
+        grid = fig.add_gridspec(
+            nrows,
+            cols,
+            left=left / COLUMN_WIDTH,
+            right=1 - right / COLUMN_WIDTH,
+            bottom=foot / height,
+            top=1 - head / height,
+            wspace=gap_w / aw,
+            hspace=gap_h / ah,
+        )
         axes = grid.subplots(squeeze=False)
         for i, rows in enumerate(panels):
             ax = axes[i // cols][i % cols]
@@ -495,45 +664,60 @@ def fan_alt_text(facts: BriefingFacts, region: str, quantity: str) -> str:
     rows = _outlook_rows(facts, region, quantity)
     a, z = rows[0], rows[-1]
     q = _lower_first(a.quantity_name)
-    parts = [f"Fan chart of weekly {q} in {a.region_name}, issued {facts.issued_text}: "
-             f"about {a.median_text} expected in the week ending {a.week_ending_text}, "
-             f"a 9 in 10 chance between {a.range90_low_text} and {a.range90_high_text}"]
+    parts = [
+        f"Fan chart of weekly {q} in {a.region_name}, issued {facts.issued_text}: "
+        f"about {a.median_text} expected in the week ending {a.week_ending_text}, "
+        f"a 9 in 10 chance between {a.range90_low_text} and {a.range90_high_text}"
+    ]
     if z is not a:
-        parts.append(f"; by the week ending {z.week_ending_text}, about {z.median_text} "
-                     f"(9 in 10 chance between {z.range90_low_text} and "
-                     f"{z.range90_high_text})")
+        parts.append(
+            f"; by the week ending {z.week_ending_text}, about {z.median_text} "
+            f"(9 in 10 chance between {z.range90_low_text} and "
+            f"{z.range90_high_text})"
+        )
     if a.threshold is not None:
         line = a.threshold_label or "threshold"
         parts.append(f"; the {line} is at {a.threshold_text}")
         if a.p_above_threshold_text:
-            parts.append(f", with {a.p_above_threshold_text} chance of going above it in the "
-                         f"week ending {a.week_ending_text}")
+            parts.append(
+                f", with {a.p_above_threshold_text} chance of going above it in the "
+                f"week ending {a.week_ending_text}"
+            )
     parts.append(".")
     if a.last_value_text != "n/a":
         prov = " (provisional: may be revised)" if a.last_provisional else ""
-        parts.append(f" The latest observed value was {a.last_value_text} in the week ending "
-                     f"{a.last_week_text}{prov}.")
+        parts.append(
+            f" The latest observed value was {a.last_value_text} in the week ending "
+            f"{a.last_week_text}{prov}."
+        )
     return "".join(parts)
 
 
-def outlook_alt_text(facts: BriefingFacts, quantity: str, *, include_total: bool = False,
-                     max_listed: int = 8) -> str:
+def outlook_alt_text(
+    facts: BriefingFacts, quantity: str, *, include_total: bool = False, max_listed: int = 8
+) -> str:
     """The takeaway of the small multiples: each region's next-week outlook (up to a few)."""
     info = _quantity_info(facts, quantity)
     first = min(facts.horizons) if facts.horizons else 1
-    rows = [o for o in facts.outlook if o.quantity == quantity and o.horizon == first
-            and (include_total or not o.is_total)]
+    rows = [
+        o
+        for o in facts.outlook
+        if o.quantity == quantity and o.horizon == first and (include_total or not o.is_total)
+    ]
     order = {r["id"]: i for i, r in enumerate(facts.regions)}
     rows.sort(key=lambda o: order.get(o.region, len(order)))
     q = _lower_first(str(info["name"]))
     if not rows:
         return f"Small multiples of weekly {q}: no regional forecasts this week."
-    head = (f"Small multiples of weekly {q} in {len(rows)} regions, each on its own scale, "
-            f"for the week ending {rows[0].week_ending_text}: ")
-    listed = "; ".join(f"{o.region_name} about {o.median_text} (9 in 10 chance "
-                       f"{o.range90_text})" for o in rows[:max_listed])
-    tail = "." if len(rows) <= max_listed else \
-        "; the other regions are in the outlook table."
+    head = (
+        f"Small multiples of weekly {q} in {len(rows)} regions, each on its own scale, "
+        f"for the week ending {rows[0].week_ending_text}: "
+    )
+    listed = "; ".join(
+        f"{o.region_name} about {o.median_text} (9 in 10 chance {o.range90_text})"
+        for o in rows[:max_listed]
+    )
+    tail = "." if len(rows) <= max_listed else "; the other regions are in the outlook table."
     return head + listed + tail
 
 
@@ -549,13 +733,17 @@ CAL_FLOOR = 1e-4
 
 
 def _alpha_row(facts: BriefingFacts, quantity: str, horizon: int) -> Mapping[str, Any] | None:
-    return next((a for a in facts.alpha if a["quantity"] == quantity
-                 and int(a["horizon"]) == horizon), None)
+    return next(
+        (a for a in facts.alpha if a["quantity"] == quantity and int(a["horizon"]) == horizon), None
+    )
 
 
 def _superscript(n: int) -> str:
-    return str(n).translate(str.maketrans("-0123456789", "\u207b\u2070\u00b9\u00b2\u00b3"
-                                                        "\u2074\u2075\u2076\u2077\u2078\u2079"))
+    return str(n).translate(
+        str.maketrans(
+            "-0123456789", "\u207b\u2070\u00b9\u00b2\u00b3\u2074\u2075\u2076\u2077\u2078\u2079"
+        )
+    )
 
 
 def _decade_label(x: float, floor: float) -> str:
@@ -564,15 +752,20 @@ def _decade_label(x: float, floor: float) -> str:
     return f"\u2264{text}" if x <= floor * 1.0001 and floor <= CAL_FLOOR * 1.0001 else text
 
 
-def _points(facts: BriefingFacts, quantity: str, horizon: int
-            ) -> tuple[list[tuple[str, float | None, float | None, float, str]], bool]:
+def _points(
+    facts: BriefingFacts, quantity: str, horizon: int
+) -> tuple[list[tuple[str, float | None, float | None, float, str]], bool]:
     """(model, calibration, information, weight, verdict) for each model; per-horizon scores
     when the facts' weights carry them, else the verdicts' scores pooled over horizons."""
     verdicts = {v.model: v for v in facts.verdicts if v.quantity == quantity}
-    weights = {str(w["model"]): w for w in facts.weights if w["quantity"] == quantity
-               and int(w["horizon"]) == horizon}
-    per_h = bool(weights) and all("calibration" in w and "information" in w
-                                  for w in weights.values())
+    weights = {
+        str(w["model"]): w
+        for w in facts.weights
+        if w["quantity"] == quantity and int(w["horizon"]) == horizon
+    }
+    per_h = bool(weights) and all(
+        "calibration" in w and "information" in w for w in weights.values()
+    )
     out = []
     for model, v in verdicts.items():
         w = weights.get(model)
@@ -581,8 +774,15 @@ def _points(facts: BriefingFacts, quantity: str, horizon: int
             cal, inf = w["calibration"], w["information"]
         else:
             cal, inf = v.calibration, v.information
-        out.append((model, None if cal is None else float(cal),
-                    None if inf is None else float(inf), weight, v.verdict))
+        out.append(
+            (
+                model,
+                None if cal is None else float(cal),
+                None if inf is None else float(inf),
+                weight,
+                v.verdict,
+            )
+        )
     return out, per_h
 
 
@@ -606,8 +806,9 @@ def reliability_chart(
     _check_quantity(facts, quantity)
     h = min(facts.horizons) if horizon is None else horizon
     if h not in facts.horizons:
-        raise ValueError(f"horizon must be one of {', '.join(map(str, facts.horizons))}; "
-                         f"got {horizon!r}")
+        raise ValueError(
+            f"horizon must be one of {', '.join(map(str, facts.horizons))}; got {horizon!r}"
+        )
     pts, per_h = _points(facts, quantity, h)
     with _style():
         if ax is None:
@@ -620,9 +821,14 @@ def _size(weight: float) -> float:
     return 28.0 + 230.0 * max(0.0, min(1.0, weight))
 
 
-def _draw_reliability(facts: BriefingFacts, quantity: str, h: int,
-                      pts: list[tuple[str, float | None, float | None, float, str]],
-                      per_h: bool, ax: Axes) -> None:
+def _draw_reliability(
+    facts: BriefingFacts,
+    quantity: str,
+    h: int,
+    pts: list[tuple[str, float | None, float | None, float, str]],
+    per_h: bool,
+    ax: Axes,
+) -> None:
     _style_axes(ax, grid_axis="both")
     shown = [p for p in pts if p[1] is not None and p[2] is not None]
     missing = [p[0] for p in pts if p[1] is None or p[2] is None]
@@ -649,27 +855,65 @@ def _draw_reliability(facts: BriefingFacts, quantity: str, h: int,
     xs, ys, sizes = [], [], []
     for model, cal, inf, weight, verdict in shown:
         marker, colour, filled = _VERDICT_STYLE.get(verdict, ("o", OKABE_ITO["black"], True))
-        assert cal is not None and inf is not None
+        assert cal is not None
+        assert inf is not None
         x = xpos(cal)
-        ax.scatter([x], [inf], s=_size(weight), marker=marker,
-                   facecolors=colour if filled else "white", edgecolors=colour if filled
-                   else INK, linewidths=0.8 if filled else 1.1, alpha=0.9, zorder=4,
-                   gid=f"model:{model}")
+        ax.scatter(
+            [x],
+            [inf],
+            s=_size(weight),
+            marker=marker,
+            facecolors=colour if filled else "white",
+            edgecolors=colour if filled else INK,
+            linewidths=0.8 if filled else 1.1,
+            alpha=0.9,
+            zorder=4,
+            gid=f"model:{model}",
+        )
         xs.append(x)
         ys.append(inf)
         sizes.append(_size(weight))
     pool_pts = []
-    if arow is not None and arow.get("pool_calibration") is not None and \
-            arow.get("pool_information") is not None:
-        pool_pts.append(("weighted_pool", float(arow["pool_calibration"]),
-                         float(arow["pool_information"]), "*", 170.0))
-    if arow is not None and arow.get("equal_pool_calibration") is not None and \
-            arow.get("equal_pool_information") is not None:
-        pool_pts.append(("equal_pool", float(arow["equal_pool_calibration"]),
-                         float(arow["equal_pool_information"]), "P", 110.0))
+    if (
+        arow is not None
+        and arow.get("pool_calibration") is not None
+        and arow.get("pool_information") is not None
+    ):
+        pool_pts.append(
+            (
+                "weighted_pool",
+                float(arow["pool_calibration"]),
+                float(arow["pool_information"]),
+                "*",
+                170.0,
+            )
+        )
+    if (
+        arow is not None
+        and arow.get("equal_pool_calibration") is not None
+        and arow.get("equal_pool_information") is not None
+    ):
+        pool_pts.append(
+            (
+                "equal_pool",
+                float(arow["equal_pool_calibration"]),
+                float(arow["equal_pool_information"]),
+                "P",
+                110.0,
+            )
+        )
     for key, cal, inf, marker, s in pool_pts:
-        ax.scatter([xpos(cal)], [inf], s=s, marker=marker, facecolors=PALETTE[key],
-                   edgecolors="white", linewidths=0.8, zorder=5, gid=key)
+        ax.scatter(
+            [xpos(cal)],
+            [inf],
+            s=s,
+            marker=marker,
+            facecolors=PALETTE[key],
+            edgecolors="white",
+            linewidths=0.8,
+            zorder=5,
+            gid=key,
+        )
         xs.append(xpos(cal))
         ys.append(inf)
         sizes.append(s)
@@ -680,57 +924,131 @@ def _draw_reliability(facts: BriefingFacts, quantity: str, h: int,
     ax.xaxis.set_major_locator(FixedLocator(_decades(floor)))
     ax.xaxis.set_minor_locator(NullLocator())
     ax.xaxis.set_major_formatter(FuncFormatter(lambda x, _pos: _decade_label(x, floor)))
-    ax.set_xlabel("calibration score (log scale): further right = ranges held as often "
-                  "as they should")
+    ax.set_xlabel(
+        "calibration score (log scale): further right = ranges held as often as they should"
+    )
     ax.set_ylabel("information score: higher = sharper forecasts")
     info = _quantity_info(facts, quantity)
-    ax.set_title(f"{info['name']}: calibration and information of each model")
+    ax.set_title(f"{info['name']}: calibration and information of each model", y=1.0, pad=6.0)
 
     # legend: verdicts present, the lines, the pools, dot size
     handles: list[Any] = []
     for verdict in dict.fromkeys(p[4] for p in shown):
         marker, colour, filled = _VERDICT_STYLE.get(verdict, ("o", OKABE_ITO["black"], True))
-        handles.append(Line2D([], [], lw=0, marker=marker, ms=6, color=colour,
-                              mfc=colour if filled else "white",
-                              mec=colour if filled else INK, label=verdict))
+        handles.append(
+            Line2D(
+                [],
+                [],
+                lw=0,
+                marker=marker,
+                ms=6,
+                color=colour,
+                mfc=colour if filled else "white",
+                mec=colour if filled else INK,
+                label=verdict,
+            )
+        )
     for key, *_rest in pool_pts:
-        handles.append(Line2D([], [], lw=0, marker="*" if key == "weighted_pool" else "P",
-                              ms=9 if key == "weighted_pool" else 7, color=PALETTE[key],
-                              label=("combined (reliability-weighted)" if key ==
-                                     "weighted_pool" else "combined (equal weights)")))
+        handles.append(
+            Line2D(
+                [],
+                [],
+                lw=0,
+                marker="*" if key == "weighted_pool" else "P",
+                ms=9 if key == "weighted_pool" else 7,
+                color=PALETTE[key],
+                label=(
+                    "combined (reliability-weighted)"
+                    if key == "weighted_pool"
+                    else "combined (equal weights)"
+                ),
+            )
+        )
     when = "next week" if h == 1 else f"{h} weeks ahead"
     if alpha is not None:
-        handles.append(Line2D([], [], color=PALETTE["cutoff"], ls="--", lw=1.1,
-                              label=f"weight cutoff {when}: {alpha:.3g}"))
+        handles.append(
+            Line2D(
+                [],
+                [],
+                color=PALETTE["cutoff"],
+                ls="--",
+                lw=1.1,
+                label=f"weight cutoff {when}: {alpha:.3g}",
+            )
+        )
     if level is not None:
-        handles.append(Line2D([], [], color=INK_SOFT, ls=":", lw=0.9,
-                              label=f"verdict 'reliable' from {float(level):g}"))
-    handles.append(Line2D([], [], lw=0, marker="o", ms=np.sqrt(_size(0.0)), mfc="none",
-                          mec=INK_SOFT, label=f"dot size: weight {when}, 0 ..."))
-    handles.append(Line2D([], [], lw=0, marker="o", ms=np.sqrt(_size(1.0)), mfc="none",
-                          mec=INK_SOFT, label="... to 1"))
-    ax.legend(handles=handles, loc="upper left", bbox_to_anchor=(1.01, 1.0),
-              borderaxespad=0.0, labelspacing=0.9)
+        handles.append(
+            Line2D(
+                [],
+                [],
+                color=INK_SOFT,
+                ls=":",
+                lw=0.9,
+                label=f"verdict 'reliable' from {float(level):g}",
+            )
+        )
+    handles.append(
+        Line2D(
+            [],
+            [],
+            lw=0,
+            marker="o",
+            ms=np.sqrt(_size(0.0)),
+            mfc="none",
+            mec=INK_SOFT,
+            label=f"dot size: weight {when}, 0 ...",
+        )
+    )
+    handles.append(
+        Line2D(
+            [],
+            [],
+            lw=0,
+            marker="o",
+            ms=np.sqrt(_size(1.0)),
+            mfc="none",
+            mec=INK_SOFT,
+            label="... to 1",
+        )
+    )
+    ax.legend(
+        handles=handles,
+        loc="upper left",
+        bbox_to_anchor=(1.01, 1.0),
+        borderaxespad=0.0,
+        labelspacing=0.9,
+    )
     notes = []
     if not per_h and len(facts.horizons) > 1:
         hs = f"{min(facts.horizons)}\u2013{max(facts.horizons)}"
-        notes.append(f"Model positions pool {hs} weeks ahead; weights and cutoff are for "
-                     f"{when}, so a model left of the line can still carry weight.")
+        notes.append(
+            f"Model positions pool {hs} weeks ahead; weights and cutoff are for "
+            f"{when}, so a model left of the line can still carry weight."
+        )
     if missing:
         notes.append("Not placed (no score yet): " + ", ".join(missing) + ".")
     if notes:
-        ax.text(1.01, 0.0, "\n".join(textwrap.fill(n, 46) for n in notes),
-                transform=ax.transAxes, ha="left", va="bottom", fontsize=6.5, color=INK_SOFT,
-                gid="note")
-    names = [p[0] for p in shown] + [("combined" if k == "weighted_pool" else "equal")
-                                     for k, *_r in pool_pts]
+        ax.text(
+            1.01,
+            0.0,
+            "\n".join(textwrap.fill(n, 46) for n in notes),
+            transform=ax.transAxes,
+            ha="left",
+            va="bottom",
+            fontsize=6.5,
+            color=INK_SOFT,
+            gid="note",
+        )
+    names = [p[0] for p in shown] + [
+        ("combined" if k == "weighted_pool" else "equal") for k, *_r in pool_pts
+    ]
     _place_labels(ax, xs, ys, names, sizes)
 
 
 def _decades(floor: float) -> list[float]:
-    lo = int(round(np.log10(floor)))
+    lo = round(float(np.log10(floor)))
     step = 1 if lo >= -4 else (2 if lo >= -8 else 3)
-    ticks = [10.0 ** e for e in range(0, lo - 1, -step)]
+    ticks = [10.0**e for e in range(0, lo - 1, -step)]
     if ticks[-1] > floor * 1.0001:
         ticks.append(floor)
     return sorted(ticks)
@@ -743,8 +1061,9 @@ def _renderer(fig: Any) -> Any:
     return fig._get_renderer()
 
 
-def _place_labels(ax: Axes, xs: Sequence[float], ys: Sequence[float], names: Sequence[str],
-                  sizes: Sequence[float]) -> None:
+def _place_labels(
+    ax: Axes, xs: Sequence[float], ys: Sequence[float], names: Sequence[str], sizes: Sequence[float]
+) -> None:
     """Name each point beside it, trying eight directions, then further out with a leader,
     so that no label overlaps a point, another label or the axes' edge (greedy)."""
     if not names:
@@ -759,13 +1078,19 @@ def _place_labels(ax: Axes, xs: Sequence[float], ys: Sequence[float], names: Seq
         r = np.sqrt(s) / 2 * scale
         taken.append((px - r, py - r, px + r, py + r))
     box = ax.get_window_extent(renderer)
-    dirs = [(1, 0, "left", "center"), (-1, 0, "right", "center"), (0, 1, "center", "bottom"),
-            (0, -1, "center", "top"), (1, 1, "left", "bottom"), (-1, 1, "right", "bottom"),
-            (1, -1, "left", "top"), (-1, -1, "right", "top")]
+    dirs = [
+        (1, 0, "left", "center"),
+        (-1, 0, "right", "center"),
+        (0, 1, "center", "bottom"),
+        (0, -1, "center", "top"),
+        (1, 1, "left", "bottom"),
+        (-1, 1, "right", "bottom"),
+        (1, -1, "left", "top"),
+        (-1, -1, "right", "top"),
+    ]
 
     def overlaps(bb: Any) -> int:
-        n = sum(1 for (a, b, c, d) in taken if bb.x0 < c and bb.x1 > a and bb.y0 < d
-                and bb.y1 > b)
+        n = sum(1 for (a, b, c, d) in taken if bb.x0 < c and bb.x1 > a and bb.y0 < d and bb.y1 > b)
         outside = bb.x0 < box.x0 or bb.x1 > box.x1 or bb.y0 < box.y0 or bb.y1 > box.y1
         return n + (10 if outside else 0)
 
@@ -777,12 +1102,27 @@ def _place_labels(ax: Axes, xs: Sequence[float], ys: Sequence[float], names: Seq
             for dx, dy, ha, va in dirs:
                 d = r_pt + reach
                 off = (dx * d, dy * d * 0.8)
-                ann = ax.annotate(names[i], (xs[i], ys[i]), xytext=off,
-                                  textcoords="offset points", ha=ha, va=va, fontsize=7,
-                                  color=INK, zorder=8, gid=f"label:{names[i]}",
-                                  arrowprops={"arrowstyle": "-", "color": INK_SOFT,
-                                              "lw": 0.6, "shrinkA": 0, "shrinkB": r_pt}
-                                  if lead else None)
+                ann = ax.annotate(
+                    names[i],
+                    (xs[i], ys[i]),
+                    xytext=off,
+                    textcoords="offset points",
+                    ha=ha,
+                    va=va,
+                    fontsize=7,
+                    color=INK,
+                    zorder=8,
+                    gid=f"label:{names[i]}",
+                    arrowprops={
+                        "arrowstyle": "-",
+                        "color": INK_SOFT,
+                        "lw": 0.6,
+                        "shrinkA": 0,
+                        "shrinkB": r_pt,
+                    }
+                    if lead
+                    else None,
+                )
                 bb = ann.get_window_extent(renderer)
                 score = overlaps(bb)
                 if best is None or score < best[0]:
@@ -800,8 +1140,7 @@ def _place_labels(ax: Axes, xs: Sequence[float], ys: Sequence[float], names: Seq
         taken.append((bb.x0 - 1, bb.y0 - 1, bb.x1 + 1, bb.y1 + 1))
 
 
-def reliability_alt_text(facts: BriefingFacts, quantity: str, *,
-                         horizon: int | None = None) -> str:
+def reliability_alt_text(facts: BriefingFacts, quantity: str, *, horizon: int | None = None) -> str:
     """The takeaway of the reliability chart: verdicts, the cutoff and who carries weight."""
     info = _quantity_info(facts, quantity)
     h = min(facts.horizons) if horizon is None else horizon
@@ -813,17 +1152,27 @@ def reliability_alt_text(facts: BriefingFacts, quantity: str, *,
     for v in vs:
         groups.setdefault(v.verdict, []).append(v.model)
     said = "; ".join(f"{len(ms)} {verdict} ({', '.join(ms)})" for verdict, ms in groups.items())
-    text = (f"Scatter chart of the {len(vs)} models for {q} by calibration score (how often "
-            f"their ranges held) and information score (how sharp they are): {said}.")
+    text = (
+        f"Scatter chart of the {len(vs)} models for {q} by calibration score (how often "
+        f"their ranges held) and information score (how sharp they are): {said}."
+    )
     arow = _alpha_row(facts, quantity, h)
     when = "next week" if h == 1 else f"{h} weeks ahead"
     if arow is not None and arow.get("alpha") is not None:
         text += f" The calibration cutoff for weights {when} is {float(arow['alpha']):.3g}."
-    heavy = [w for w in facts.weights if w["quantity"] == quantity and int(w["horizon"]) == h
-             and float(w["weight"]) > 0]
+    heavy = [
+        w
+        for w in facts.weights
+        if w["quantity"] == quantity and int(w["horizon"]) == h and float(w["weight"]) > 0
+    ]
     if heavy:
-        text += " Weight " + when + ": " + ", ".join(
-            f"{w['model']} {float(w['weight']):.2f}" for w in heavy) + "."
+        text += (
+            " Weight "
+            + when
+            + ": "
+            + ", ".join(f"{w['model']} {float(w['weight']):.2f}" for w in heavy)
+            + "."
+        )
     return text
 
 
@@ -855,21 +1204,45 @@ def weights_chart(facts: BriefingFacts, quantity: str, *, ax: Axes | None = None
         y0 = np.arange(len(models), dtype=float)
         for k, h in enumerate(horizons):
             y = y0 - band / 2 + bh * (k + 0.5)
-            widths = [float(table[(m, h)]["weight"]) if (m, h) in table else 0.0
-                      for m in models]
-            bars = ax.barh(y, widths, height=bh * 0.9, color=colours[h], gid=f"weights-h{h}",
-                           label="next week" if h == 1 else f"{h} weeks ahead", zorder=3)
+            widths = [float(table[(m, h)]["weight"]) if (m, h) in table else 0.0 for m in models]
+            bars = ax.barh(
+                y,
+                widths,
+                height=bh * 0.9,
+                color=colours[h],
+                gid=f"weights-h{h}",
+                label="next week" if h == 1 else f"{h} weeks ahead",
+                zorder=3,
+            )
             for bar, w in zip(bars, widths, strict=True):
                 if w > 0:
-                    ax.text(w + 0.01, bar.get_y() + bar.get_height() / 2, f"{w:.2f}",
-                            va="center", ha="left", fontsize=6.5, color=INK)
+                    ax.text(
+                        w + 0.01,
+                        bar.get_y() + bar.get_height() / 2,
+                        f"{w:.2f}",
+                        va="center",
+                        ha="left",
+                        fontsize=6.5,
+                        color=INK,
+                    )
         for i, m in enumerate(models):
             ws = [table[(m, h)] for h in horizons if (m, h) in table]
             if ws and all(float(w["weight"]) == 0 for w in ws):
-                why = ("not yet rated" if not any(bool(w["rated"]) for w in ws)
-                       else "below the calibration cutoff")
-                ax.text(0.012, i, f"no weight: {why}", va="center", ha="left", fontsize=7,
-                        color=INK_SOFT, gid=f"no-weight:{m}")
+                why = (
+                    "not yet rated"
+                    if not any(bool(w["rated"]) for w in ws)
+                    else "below the calibration cutoff"
+                )
+                ax.text(
+                    0.012,
+                    i,
+                    f"no weight: {why}",
+                    va="center",
+                    ha="left",
+                    fontsize=7,
+                    color=INK_SOFT,
+                    gid=f"no-weight:{m}",
+                )
         ax.set_yticks(y0, models)
         ax.invert_yaxis()
         ax.set_ylim(len(models) - 0.5, -0.5)
@@ -878,10 +1251,16 @@ def weights_chart(facts: BriefingFacts, quantity: str, *, ax: Axes | None = None
         ax.tick_params(axis="y", length=0)
         ax.set_xlabel("weight in the combined forecast (each week ahead adds up to 1)")
         info = _quantity_info(facts, quantity)
-        ax.set_title(f"{info['name']}: weight of each model")
-        ax.legend(loc="upper left", bbox_to_anchor=(1.01, 1.0), borderaxespad=0.0,
-                  handlelength=1.2, title="weeks ahead" if n_h > 1 else None,
-                  title_fontsize=7.5, alignment="left")
+        ax.set_title(f"{info['name']}: weight of each model", y=1.0, pad=6.0)
+        ax.legend(
+            loc="upper left",
+            bbox_to_anchor=(1.01, 1.0),
+            borderaxespad=0.0,
+            handlelength=1.2,
+            title="weeks ahead" if n_h > 1 else None,
+            title_fontsize=7.5,
+            alignment="left",
+        )
     return ax
 
 
@@ -895,7 +1274,8 @@ def weights_alt_text(facts: BriefingFacts, quantity: str) -> str:
     for w in sorted(rows, key=lambda w: (str(w["model"]), int(w["horizon"]))):
         if float(w["weight"]) > 0:
             carrying.setdefault(str(w["model"]), {}).setdefault(
-                f"{float(w['weight']):.2f}", []).append(int(w["horizon"]))
+                f"{float(w['weight']):.2f}", []
+            ).append(int(w["horizon"]))
     if not carrying:
         return f"Bar chart of model weights for {q}: no model carries weight."
 
@@ -904,12 +1284,15 @@ def weights_alt_text(facts: BriefingFacts, quantity: str) -> str:
         joined = words[0] if len(words) == 1 else ", ".join(words[:-1]) + " and " + words[-1]
         return f"{joined} week{'s' if words != ['1'] else ''} ahead"
 
-    said = "; ".join(f"{m} " + ", ".join(f"{w} at {hs(v)}" for w, v in by.items())
-                     for m, by in carrying.items())
+    said = "; ".join(
+        f"{m} " + ", ".join(f"{w} at {hs(v)}" for w, v in by.items()) for m, by in carrying.items()
+    )
     rest = len(models) - len(carrying)
     tail = f"; the other {rest} models have no weight." if rest else "."
-    return (f"Bar chart of each model's weight in the combined forecast for {q}, by weeks "
-            f"ahead: {said}{tail}")
+    return (
+        f"Bar chart of each model's weight in the combined forecast for {q}, by weeks "
+        f"ahead: {said}{tail}"
+    )
 
 
 # --------------------------------------------------------------------------------------------
@@ -961,22 +1344,43 @@ def track_chart(facts: BriefingFacts, quantity: str, *, ax: Axes | None = None) 
             if not x:
                 continue
             top = max(top, *[float(v) for v in y if v is not None])
-            ax.plot(x, y, ls=ls, marker=marker, ms=4.5, lw=1.6 if key == "weighted_pool"
-                    else 1.2, color=_method_colour(key), gid=f"track:{key}",
-                    label=_short_label(rows[0]), zorder=4 if key == "weighted_pool" else 3,
-                    mfc="white" if key == "baseline" else _method_colour(key))
+            ax.plot(
+                x,
+                y,
+                ls=ls,
+                marker=marker,
+                ms=4.5,
+                lw=1.6 if key == "weighted_pool" else 1.2,
+                color=_method_colour(key),
+                gid=f"track:{key}",
+                label=_short_label(rows[0]),
+                zorder=4 if key == "weighted_pool" else 3,
+                mfc="white" if key == "baseline" else _method_colour(key),
+            )
         ticks = sorted(set(hs)) or list(facts.horizons)
         ax.set_xticks(ticks, [str(h) for h in ticks])
         ax.set_xlim(min(ticks) - 0.3, max(ticks) + 0.3)
         ax.set_ylim(0, top * 1.15)
         ax.axhspan(0, 1, color=PALETTE["weighted_pool"], alpha=0.04, lw=0, zorder=0)
-        ax.text(0.01, 0.03, "below 1: smaller error than the baseline", fontsize=6.5,
-                color=INK_SOFT, transform=ax.transAxes, ha="left", va="bottom")
+        ax.text(
+            0.01,
+            0.03,
+            "below 1: smaller error than the baseline",
+            fontsize=6.5,
+            color=INK_SOFT,
+            transform=ax.transAxes,
+            ha="left",
+            va="bottom",
+        )
         ax.set_xlabel("weeks ahead")
         ax.set_ylabel("relative WIS (baseline = 1)")
         info = _quantity_info(facts, quantity)
-        ax.set_title(f"{info['name']}: forecast error relative to the baseline, last "
-                     f"{facts.track_weeks} issue dates")
+        ax.set_title(
+            f"{info['name']}: forecast error relative to the baseline, last "
+            f"{facts.track_weeks} issue dates",
+            y=1.0,
+            pad=6.0,
+        )
         ax.legend(loc="upper left", bbox_to_anchor=(1.01, 1.0), borderaxespad=0.0)
     return ax
 
@@ -1005,14 +1409,36 @@ def coverage_chart(facts: BriefingFacts, quantity: str, *, ax: Axes | None = Non
                 if t is None:
                     continue
                 colour = _method_colour(key)
-                ax.barh([y], [t.n_items], height=0.78, facecolor="none", edgecolor=INK_SOFT,
-                        lw=0.6, zorder=2, gid=f"cover-all:{key}:h{h}")
-                ax.barh([y], [t.in_90], height=0.78, color=colour, zorder=3,
-                        hatch="////" if key == "baseline" else None,
-                        edgecolor="white" if key == "baseline" else colour, lw=0,
-                        gid=f"cover:{key}:h{h}")
-                ax.text(t.n_items, y, f"  in {t.in_90_text}", va="center", ha="left",
-                        fontsize=6.5, color=INK)
+                ax.barh(
+                    [y],
+                    [t.n_items],
+                    height=0.78,
+                    facecolor="none",
+                    edgecolor=INK_SOFT,
+                    lw=0.6,
+                    zorder=2,
+                    gid=f"cover-all:{key}:h{h}",
+                )
+                ax.barh(
+                    [y],
+                    [t.in_90],
+                    height=0.78,
+                    color=colour,
+                    zorder=3,
+                    hatch="////" if key == "baseline" else None,
+                    edgecolor="white" if key == "baseline" else colour,
+                    lw=0,
+                    gid=f"cover:{key}:h{h}",
+                )
+                ax.text(
+                    t.n_items,
+                    y,
+                    f"  in {t.in_90_text}",
+                    va="center",
+                    ha="left",
+                    fontsize=6.5,
+                    color=INK,
+                )
                 n_max = max(n_max, t.n_items)
                 y += 1
             ticks.append(y - (len(keys) + 1) / 2)
@@ -1022,15 +1448,21 @@ def coverage_chart(facts: BriefingFacts, quantity: str, *, ax: Axes | None = Non
         ax.tick_params(axis="y", length=0)
         ax.set_ylim(y - 0.5, -0.8)
         ax.set_xlim(0, n_max * 1.3)
-        ax.set_xlabel("weeks when the observed value fell inside the 90% range (outline: all "
-                      "weeks scored)")
+        ax.set_xlabel(
+            "weeks when the observed value fell inside the 90% range (outline: all weeks scored)"
+        )
         info = _quantity_info(facts, quantity)
-        ax.set_title(f"{info['name']}: how often the 90% range held")
-        handles = [Patch(facecolor=_method_colour(k), hatch="////" if k == "baseline" else None,
-                         edgecolor="white" if k == "baseline" else _method_colour(k),
-                         label=_short_label(methods[k][0])) for k in keys]
-        ax.legend(handles=handles, loc="upper left", bbox_to_anchor=(1.01, 1.0),
-                  borderaxespad=0.0)
+        ax.set_title(f"{info['name']}: how often the 90% range held", y=1.0, pad=6.0)
+        handles = [
+            Patch(
+                facecolor=_method_colour(k),
+                hatch="////" if k == "baseline" else None,
+                edgecolor="white" if k == "baseline" else _method_colour(k),
+                label=_short_label(methods[k][0]),
+            )
+            for k in keys
+        ]
+        ax.legend(handles=handles, loc="upper left", bbox_to_anchor=(1.01, 1.0), borderaxespad=0.0)
     return ax
 
 
@@ -1059,19 +1491,25 @@ def track_alt_text(facts: BriefingFacts, quantity: str) -> str:
             continue
         t = next((r for r in rows if r.horizon == first), None)
         if t is not None:
-            parts.append(f"the {t.label} had {t.vs_baseline_text} (relative WIS "
-                         f"{t.relative_wis_text}) and its 90% range held in {t.in_90_text} "
-                         "weeks")
+            parts.append(
+                f"the {t.label} had {t.vs_baseline_text} (relative WIS "
+                f"{t.relative_wis_text}) and its 90% range held in {t.in_90_text} "
+                "weeks"
+            )
     base = next((r for r in methods.get("baseline", []) if r.horizon == first), None)
-    text = (f"Chart of the back-test over the last {facts.track_weeks} issue dates for {q}, "
-            f"one week ahead: " + "; ".join(parts) + ".")
+    text = (
+        f"Chart of the back-test over the last {facts.track_weeks} issue dates for {q}, "
+        f"one week ahead: " + "; ".join(parts) + "."
+    )
     if base is not None:
         text += f" The baseline's 90% range held in {base.in_90_text} weeks."
     wp = methods.get("weighted_pool", [])
     last = wp[-1] if wp else None
     if last is not None and last.horizon != first:
-        text += (f" {last.horizon} weeks ahead, the {last.label} had {last.vs_baseline_text} "
-                 f"(relative WIS {last.relative_wis_text}).")
+        text += (
+            f" {last.horizon} weeks ahead, the {last.label} had {last.vs_baseline_text} "
+            f"(relative WIS {last.relative_wis_text})."
+        )
     return text
 
 
@@ -1162,26 +1600,33 @@ def _freeze_layout(fig: Figure, *, dpi: int) -> None:
         fig.set_layout_engine("none")
 
 
-def _spec(fig: Figure, *, key: str, title: str, caption: str, alt: str, section: str,
-          dpi: int) -> ChartSpec:
+def _spec(
+    fig: Figure, *, key: str, title: str, caption: str, alt: str, section: str, dpi: int
+) -> ChartSpec:
     try:
         _freeze_layout(fig, dpi=dpi)
         svg = _svg(fig, title=title, description=alt)
         png = _png(fig, dpi=dpi)
     finally:
         _close(fig)
-    return ChartSpec(key=key, title=title, caption=caption, alt=alt, svg=svg, png=png,
-                     section=section)
+    return ChartSpec(
+        key=key, title=title, caption=caption, alt=alt, svg=svg, png=png, section=section
+    )
 
 
 def _fan_caption(facts: BriefingFacts, row: OutlookRow) -> str:
-    line = (f" Dash-dot line: the {row.threshold_label or 'threshold'} at "
-            f"{row.threshold_text}." if row.threshold is not None else "")
-    return (f"Black: observed {_lower_first(row.quantity_name)} per week (hollow points: "
-            "provisional weeks, likely to be revised). Blue: the combined forecast, its median "
-            "with the 50% (darker) and 90% (lighter) ranges. Dashed: the baseline, which "
-            f"repeats the latest week.{line} Dotted: the issue date, {facts.issued_text}; data "
-            f"as of {facts.data_as_of_text}.")
+    line = (
+        f" Dash-dot line: the {row.threshold_label or 'threshold'} at {row.threshold_text}."
+        if row.threshold is not None
+        else ""
+    )
+    return (
+        f"Black: observed {_lower_first(row.quantity_name)} per week (hollow points: "
+        "provisional weeks, likely to be revised). Blue: the combined forecast, its median "
+        "with the 50% (darker) and 90% (lighter) ranges. Dashed: the baseline, which "
+        f"repeats the latest week.{line} Dotted: the issue date, {facts.issued_text}; data "
+        f"as of {facts.data_as_of_text}."
+    )
 
 
 def briefing_figures(facts: BriefingFacts, *, dpi: int = 200) -> list[ChartSpec]:
@@ -1202,60 +1647,100 @@ def briefing_figures(facts: BriefingFacts, *, dpi: int = 200) -> list[ChartSpec]
         if total_rows:
             first = min(total_rows, key=lambda o: o.horizon)
             ax = fan_chart(facts, first.region, qid)
-            specs.append(_spec(_figure_of(ax), key=f"fan_{qid}_{first.region}",
-                               title=f"{name}: outlook for {first.region_name}",
-                               caption=_fan_caption(facts, first),
-                               alt=fan_alt_text(facts, first.region, qid),
-                               section="outlook", dpi=dpi))
+            specs.append(
+                _spec(
+                    _figure_of(ax),
+                    key=f"fan_{qid}_{first.region}",
+                    title=f"{name}: outlook for {first.region_name}",
+                    caption=_fan_caption(facts, first),
+                    alt=fan_alt_text(facts, first.region, qid),
+                    section="outlook",
+                    dpi=dpi,
+                )
+            )
         if any(not o.is_total for o in rows):
             first = min(rows, key=lambda o: o.horizon)
             fig = outlook_grid(facts, qid)
-            specs.append(_spec(fig, key=f"outlook_{qid}", title=f"{name}: outlook by region",
-                               caption=_fan_caption(facts, first).replace(
-                                   "Dash-dot line: the", "Dash-dot line: each region's")
-                               + " Each region has its own scale.",
-                               alt=outlook_alt_text(facts, qid), section="outlook",
-                               dpi=dpi))
+            specs.append(
+                _spec(
+                    fig,
+                    key=f"outlook_{qid}",
+                    title=f"{name}: outlook by region",
+                    caption=_fan_caption(facts, first).replace(
+                        "Dash-dot line: the", "Dash-dot line: each region's"
+                    )
+                    + " Each region has its own scale.",
+                    alt=outlook_alt_text(facts, qid),
+                    section="outlook",
+                    dpi=dpi,
+                )
+            )
         if any(v.quantity == qid for v in facts.verdicts):
             h = min(facts.horizons)
             ax = reliability_chart(facts, qid, horizon=h)
-            specs.append(_spec(_figure_of(ax), key=f"reliability_{qid}",
-                               title=f"{name}: how far each model can be trusted",
-                               caption=("Each model placed by its calibration score (how "
-                                        "often its ranges held, log scale) and information "
-                                        "score (how narrow its ranges are). Right of the "
-                                        "dashed line, a model can carry weight; bigger dots "
-                                        "carry more weight. The star is the combined "
-                                        "forecast."),
-                               alt=reliability_alt_text(facts, qid, horizon=h),
-                               section="trust", dpi=dpi))
+            specs.append(
+                _spec(
+                    _figure_of(ax),
+                    key=f"reliability_{qid}",
+                    title=f"{name}: how far each model can be trusted",
+                    caption=(
+                        "Each model placed by its calibration score (how "
+                        "often its ranges held, log scale) and information "
+                        "score (how narrow its ranges are). Right of the "
+                        "dashed line, a model can carry weight; bigger dots "
+                        "carry more weight. The star is the combined "
+                        "forecast."
+                    ),
+                    alt=reliability_alt_text(facts, qid, horizon=h),
+                    section="trust",
+                    dpi=dpi,
+                )
+            )
         if any(w["quantity"] == qid for w in facts.weights):
             ax = weights_chart(facts, qid)
-            specs.append(_spec(_figure_of(ax), key=f"weights_{qid}",
-                               title=f"{name}: weight of each model in the combined forecast",
-                               caption=("Weights by weeks ahead; at each week ahead they add "
-                                        "up to 1. Models below the calibration cutoff, or "
-                                        "with too little history, get no weight."),
-                               alt=weights_alt_text(facts, qid), section="trust", dpi=dpi))
+            specs.append(
+                _spec(
+                    _figure_of(ax),
+                    key=f"weights_{qid}",
+                    title=f"{name}: weight of each model in the combined forecast",
+                    caption=(
+                        "Weights by weeks ahead; at each week ahead they add "
+                        "up to 1. Models below the calibration cutoff, or "
+                        "with too little history, get no weight."
+                    ),
+                    alt=weights_alt_text(facts, qid),
+                    section="trust",
+                    dpi=dpi,
+                )
+            )
         if any(t.quantity == qid for t in facts.track):
             fig = track_figure(facts, qid)
-            specs.append(_spec(fig, key=f"track_{qid}",
-                               title=f"{name}: track record of the combined forecasts",
-                               caption=(f"Back-test over the last {facts.track_weeks} issue "
-                                        "dates, every region. Top: forecast error (weighted "
-                                        "interval score) relative to the baseline; below 1 "
-                                        "is better. Bottom: weeks in which the observed "
-                                        "value fell inside each method's 90% range; a "
-                                        "well-calibrated 90% range still misses about 1 week "
-                                        "in 10."),
-                               alt=track_alt_text(facts, qid), section="track", dpi=dpi))
+            specs.append(
+                _spec(
+                    fig,
+                    key=f"track_{qid}",
+                    title=f"{name}: track record of the combined forecasts",
+                    caption=(
+                        f"Back-test over the last {facts.track_weeks} issue "
+                        "dates, every region. Top: forecast error (weighted "
+                        "interval score) relative to the baseline; below 1 "
+                        "is better. Bottom: weeks in which the observed "
+                        "value fell inside each method's 90% range; a "
+                        "well-calibrated 90% range still misses about 1 week "
+                        "in 10."
+                    ),
+                    alt=track_alt_text(facts, qid),
+                    section="track",
+                    dpi=dpi,
+                )
+            )
     return specs
 
 
 def _figure_of(ax: Axes) -> Figure:
     """The Figure that owns ``ax`` (the root one, should ``ax`` sit in a subfigure)."""
     try:
-        fig = ax.get_figure(root=True)  # matplotlib >= 3.10
+        fig: Any = ax.get_figure(root=True)  # matplotlib >= 3.10
     except TypeError:
         fig = ax.get_figure()
     assert isinstance(fig, Figure)

@@ -112,11 +112,14 @@ class BriefingConfig:
         return tuple(q.id for q in self.quantities.values() if q.signed)
 
     def region_name(self, region: str) -> str:
+        """The display name; an unconfigured id reads as a name ('north-reach' -> 'North Reach')."""
         info = self.regions.get(region)
-        return info.name if info else region
+        return info.name if info else region.replace("-", " ").replace("_", " ").title()
 
     def quantity_info(self, quantity: str) -> QuantityInfo:
-        return self.quantities.get(quantity) or QuantityInfo(quantity, quantity, quantity)
+        name = quantity.replace("_", " ").replace("-", " ")
+        return self.quantities.get(quantity) or QuantityInfo(quantity, name[:1].upper() +
+                                                              name[1:], name)
 
     def threshold(self, region: str, quantity: str) -> Threshold | None:
         for t in self.thresholds:

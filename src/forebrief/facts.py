@@ -209,6 +209,7 @@ class TrackRow:
     in_90: int
     in_50_text: str
     in_90_text: str
+    expected_in_90: int = 0
 
 
 @dataclass(frozen=True)
@@ -542,7 +543,7 @@ def _track(cfg: BriefingConfig, backtest: Any) -> tuple[list[TrackRow], list[dic
             quantity=str(r.quantity), horizon=int(r.horizon), n_items=n,
             relative_wis=None if rel is None else round(rel, 2),
             relative_wis_text="n/a" if rel is None else f"{rel:.2f}",
-            vs_baseline_text=vs, in_50=n50, in_90=n90, in_50_text=f"{n50} of {n}", in_90_text=f"{n90} of {n}",
+            vs_baseline_text=vs, expected_in_90=int(round(0.9 * n)), in_50=n50, in_90=n90, in_50_text=f"{n50} of {n}", in_90_text=f"{n90} of {n}",
         ))
     # the jurisdiction total, week by week, for the weighted pool one week ahead
     total_rows: list[dict[str, Any]] = []
@@ -631,15 +632,21 @@ def build_facts(
     by_model = scores.by_model if scores is not None else pd.DataFrame()
     verdicts = _verdicts(cfg, by_model, ensemble.weights, by_model, test_level=test_level)
     track, track_total, cal_region = _track(cfg, backtest)
+    def _sig(x: Any) -> float | None:
+        return None if x is None or pd.isna(x) else float(f"{float(x):.4g}")
+
     weights = [
         {"model": r.model, "quantity": r.quantity, "horizon": int(r.horizon),
-         "weight": round(float(r.weight), 3), "rated": bool(r.rated), "status": r.status}
+         "weight": round(float(r.weight), 3), "rated": bool(r.rated), "status": r.status,
+         "calibration": _sig(r.calibration), "information": _sig(r.information)}
         for r in ensemble.weights.itertuples(index=False)
     ]
     alpha = [
         {"quantity": g["quantity"], "horizon": g["horizon"], "alpha": g["alpha"],
          "mode": g["alpha_mode"], "fallback": g["equal_weight_fallback"],
-         "pool_calibration": g["pool_calibration"], "pool_information": g["pool_information"]}
+         "pool_calibration": g["pool_calibration"], "pool_information": g["pool_information"],
+         "equal_pool_calibration": g.get("equal_pool_calibration"),
+         "equal_pool_information": g.get("equal_pool_information")}
         for g in ensemble.summary["groups"]
     ]
     changes = _changes(outlook, verdicts, weights, previous, cfg)

@@ -101,7 +101,10 @@ def _headline(facts: BriefingFacts) -> tuple[str, ...]:
     lead_q = summ.get("lead_quantity")
     track = (summ.get("track") or {}).get(lead_q)
     models = (summ.get("models") or {}).get(lead_q)
-    if track is not None and models is not None:
+    if models is not None and models["n_models"] == 0:
+        out.append("No model has a record yet, so none can be rated; the combined forecast "
+                   "weights every model equally.")
+    elif track is not None and models is not None:
         verdict = ("was more accurate than" if track["beats_baseline"]
                    else "was not more accurate than")
         out.append(

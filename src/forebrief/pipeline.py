@@ -150,7 +150,7 @@ def _sealer(run: BriefingRun, rendered: Rendered, created: dt.datetime
         except ImportError:  # pragma: no cover - during development only
             return out
         msg = build_message(run.facts, run.narrative, rendered.charts, pdf,
-                            email=run.config.email, created=created,
+                            email=_email_or_placeholder(run.config.email), created=created,
                             templates_dir=run.config.templates_dir)
         out["briefing.eml"] = msg.as_bytes()
         return out
@@ -161,6 +161,21 @@ def _sealer(run: BriefingRun, rendered: Rendered, created: dt.datetime
 def _label_root(cfg: BriefingConfig) -> Path | None:
     """Inputs are named relative to the configuration's folder (or the working folder)."""
     return cfg.source.parent if cfg.source is not None else Path.cwd()
+
+
+#: Reserved names (RFC 2606 ".invalid") used when the configuration sets no addresses, so
+#: every record still holds its e-mail; ``forebrief send --to`` gives the real recipients.
+PLACEHOLDER_SENDER = "briefing@forebrief.invalid"
+PLACEHOLDER_RECIPIENT = "recipients-not-configured@forebrief.invalid"
+
+
+def _email_or_placeholder(email: Any) -> Any:
+    changes = {}
+    if not email.sender:
+        changes["sender"] = PLACEHOLDER_SENDER
+    if not email.to:
+        changes["to"] = (PLACEHOLDER_RECIPIENT,)
+    return replace(email, **changes) if changes else email
 
 
 def _input_files(inputs: Any, label_root: Path | None) -> list[InputFile]:
