@@ -612,16 +612,16 @@ def _cmd_archive(args: argparse.Namespace, con: _Console) -> int:
             return 0
         from rich.table import Table
 
-        table = Table(title=f"Records in {root}", title_justify="left")
-        for col in ("record", "issued", "revision", "title", "decisions", "sends", "headline"):
-            table.add_column(col)
+        titles = "; ".join(sorted({r.title for r in records}))
+        lines = [f"Records in {root} ({titles})",
+                 f"{'record':<14} {'rev':>3} {'decisions':>9} {'sends':>5}  headline"]
         for r in records:
             n_dec = len(arc.read_log(r.path, arc.DECISIONS))
             n_send = len(arc.read_log(r.path, arc.SENDS))
-            head = r.headline if len(r.headline) <= 90 else r.headline[:87] + "..."
-            table.add_row(r.name, r.issued, str(r.revision), r.title, str(n_dec), str(n_send),
-                          head)
-        con.out.print(table)
+            note = f" [revised: {r.manifest.get('revision_reason')}]" if r.revision > 1 else ""
+            head = r.headline.split(". ")[0] + note
+            lines.append(f"{r.name:<14} {r.revision:>3} {n_dec:>9} {n_send:>5}  {head}")
+        con.out.print("\n".join(lines), markup=False, overflow="ignore", crop=False)
         return 0
     if args.action == "show":
         r = arc.find_record(root, args.date)
@@ -707,6 +707,59 @@ def _cmd_decide(args: argparse.Namespace, con: _Console) -> int:
     return 0
 
 
+def _cmd_send(args: argparse.Namespace, con: _Console) -> int:
+    import email as email_lib
+    import email.policy
+    import email.utils
+
+    from forebrief import archive as arc
+    from forebrief.config import config_from_dict
+    from forebrief.delivery import password_from_env_or_prompt, recipients_of, send_message
+    from forebrief.errors import DeliveryError
+
+    record_dir: Path = args.record
+    eml = record_dir / "briefing.eml"
+    if not eml.is_file():
+        raise DeliveryError(f"{eml}: no e-mail in this record; fix: give the folder of a record "
+                            "written by forebrief brief (ARCHIVE/YYYY-MM-DD)")
+    record = arc.find_record(record_dir.parent, record_dir.name)
+    cfg = config_from_dict(record.manifest.get("config", {}))
+    mail = cfg.email
+    data = eml.read_bytes()
+    msg = email_lib.message_from_bytes(data, policy=email.policy.default)
+    if args.to:
+        bare = email_lib.message_from_string("\n", policy=email.policy.default)
+        recipients = recipients_of(bare, extra=tuple(args.to))
+    else:
+        recipients = recipients_of(msg)
+    if any(r.endswith(".invalid") for r in recipients):
+        raise DeliveryError("the record's e-mail has no real recipients (the configuration set "
+                            "none); fix: pass --to ADDRESS, or set [email] to in forebrief.toml "
+                            "for the next briefing")
+    sender = email.utils.parseaddr(str(msg.get("From", "")))[1]
+    if not sender or sender.endswith(".invalid"):
+        raise DeliveryError("the record's e-mail has no real sender (the configuration set "
+                            "none); fix: set [email] from in forebrief.toml and revise the "
+                            "record with forebrief brief --revise --reason ...")
+    host = args.smtp_host or mail.smtp_host
+    if not host:
+        raise DeliveryError("no SMTP server is set; fix: pass --smtp-host, or set [email] "
+                            "smtp_host in forebrief.toml")
+    port = args.smtp_port or mail.smtp_port
+    security = "ssl" if args.ssl else "starttls" if args.starttls else mail.security
+    user = args.user or mail.user or None
+    password = password_from_env_or_prompt(mail.password_env, user=user)
+    receipt = send_message(data, sender=sender, recipients=recipients, host=host, port=port,
+                           security=security, user=user, password=password)
+    arc.append_log(record_dir.parent, record, arc.SENDS, {
+        "time": receipt.time, "recipients": list(receipt.recipients),
+        "server_reply": receipt.server_reply, "host": receipt.host, "port": receipt.port,
+    })
+    con.say(f"sent {record.name} to {', '.join(receipt.recipients)} via {host}:{port}: "
+            f"{receipt.server_reply}")
+    return 0
+
+
 def _add_archive_commands(sub: Any) -> None:
     p = sub.add_parser("archive", help="list, show, verify or reproduce archived records",
                        description="Work with the dated records of an archive folder.")
@@ -732,6 +785,23 @@ def _add_archive_commands(sub: Any) -> None:
                            help="only this record (the chain is always checked)")
         _add_common(q)
         q.set_defaults(func=_cmd_archive)
+
+    p = sub.add_parser("send", help="send a record's e-mail over SMTP",
+                       description="Send the record's briefing.eml over SMTP. The password "
+                       "comes from the environment variable named by [email] password_env "
+                       "(default FOREBRIEF_SMTP_PASSWORD) or a prompt, never from a file. "
+                       "A successful send is noted in the record's send log.")
+    p.add_argument("record", type=Path, metavar="RECORD_DIR", help="ARCHIVE/YYYY-MM-DD")
+    p.add_argument("--to", nargs="+", metavar="ADDR",
+                   help="send to these addresses instead of the message's To and Cc")
+    p.add_argument("--smtp-host", metavar="H")
+    p.add_argument("--smtp-port", type=_positive_int, metavar="P")
+    tls = p.add_mutually_exclusive_group()
+    tls.add_argument("--starttls", action="store_true", help="upgrade the connection with STARTTLS")
+    tls.add_argument("--ssl", action="store_true", help="connect over SSL/TLS from the start")
+    p.add_argument("--user", metavar="U", help="SMTP login name")
+    _add_common(p)
+    p.set_defaults(func=_cmd_send)
 
     p = sub.add_parser("decide", help="record a decision taken on a briefing",
                        description="Append a decision to a record's hash-chained decision log "

@@ -151,7 +151,9 @@ class _Collector:
         self.files = list(files)
         self.problems: list[Problem] = []
         self.error_rows = np.zeros(len(frame), dtype=bool)
-        self.reasons: list[tuple[np.ndarray, np.ndarray]] = []
+        # (row positions, reason text per position): only the rows with the error, since a
+        # full-length array per check costs more than the check itself on a large file
+        self.reasons: list[tuple[np.ndarray, list[str]]] = []
 
     def add(
         self,
@@ -168,24 +170,29 @@ class _Collector:
         mask = np.asarray(mask, dtype=bool)
         if not mask.any():
             return
-        sub = self.frame.loc[mask]
+        # only the columns needed, for only these rows (a row selection of the whole frame
+        # costs tens of milliseconds per check on a large file)
+        where = np.flatnonzero(mask)
+        index = self.frame.index[where]
         texts: pd.Series | None = None
         if callable(shown):
-            texts = pd.Series(shown(mask), index=sub.index)
+            texts = pd.Series(shown(mask), index=index)
         elif column:
             texts = (shown if shown is not None else self.frame[column]).loc[mask]
         if severity == "error":
             self.error_rows |= mask
-            detail = np.full(len(self.frame), message, dtype=object)
             if texts is not None:
-                detail[mask] = [f"{message} ({column} {t!r})" for t in texts.astype(str)]
-            self.reasons.append((mask, detail))
-        model = sub["model"].astype(str) if "model" in sub.columns else pd.Series("", index=sub.index)
+                detail = [f"{message} ({column} {t!r})" for t in texts.astype(str)]
+            else:
+                detail = [message] * where.size
+            self.reasons.append((where, detail))
+        model = (self.frame["model"].iloc[where].astype(str) if "model" in self.frame.columns
+                 else pd.Series("", index=index))
         grouped = pd.DataFrame(
             {
-                "file": sub["_file"].to_numpy(),
+                "file": self.frame["_file"].to_numpy()[where],
                 "model": model.to_numpy(),
-                "row": sub["_row"].to_numpy(),
+                "row": self.frame["_row"].to_numpy()[where],
                 "text": texts.astype(str).to_numpy() if texts is not None else "",
             }
         )
@@ -208,9 +215,9 @@ class _Collector:
     def reason_per_row(self) -> np.ndarray:
         """A short reason text per row ("" for rows without errors)."""
         out = np.full(len(self.frame), "", dtype=object)
-        for mask, detail in self.reasons:
-            for i in np.flatnonzero(mask):
-                out[i] = detail[i] if not out[i] else f"{out[i]}; {detail[i]}"
+        for where, detail in self.reasons:
+            for i, d in zip(where.tolist(), detail, strict=True):
+                out[i] = d if not out[i] else f"{out[i]}; {d}"
         return out
 
 
@@ -306,11 +313,49 @@ def _cell_text(v: object) -> str:
     return str(v).strip()
 
 
-def _text(series: pd.Series) -> pd.Series:
-    """A column as stripped text ('' for empty cells); converts each distinct value once."""
+@dataclass(frozen=True)
+class _TextColumn:
+    """A column as stripped text, with an integer code per row: rows with equal text have
+    equal codes, and ``distinct[codes]`` is the text."""
+
+    text: pd.Series
+    codes: np.ndarray
+    distinct: np.ndarray
+
+
+def _text_column(series: pd.Series) -> _TextColumn:
+    """Clean each distinct value once and expand by ``take`` (building a million-row text
+    column element by element costs a fifth of a second per column). O(rows)."""
     codes, uniques = pd.factorize(series, use_na_sentinel=False)
     cleaned = pd.Series(uniques, dtype=object).map(_cell_text)
-    return pd.Series(cleaned.to_numpy(dtype=object)[codes], index=series.index, dtype="str")
+    # two raw values may clean to one text (' a' and 'a'): number the cleaned texts afresh
+    canon, distinct = pd.factorize(cleaned.to_numpy(dtype=object), use_na_sentinel=False)
+    row_codes = canon.astype(np.int64)[codes]
+    distinct = np.asarray(distinct, dtype=object)
+    values = pd.Series(distinct, dtype="str").array
+    if series.dtype == values.dtype and len(uniques) == len(distinct) and all(
+        isinstance(u, str) and u == t for u, t in zip(uniques, cleaned, strict=True)
+    ):
+        # already clean text of the right type (the usual case): nothing to convert
+        return _TextColumn(series, row_codes, distinct)
+    text = pd.Series(values.take(row_codes), index=series.index)
+    return _TextColumn(text, row_codes, distinct)
+
+
+def _text(series: pd.Series) -> pd.Series:
+    """A column as stripped text ('' for empty cells); converts each distinct value once."""
+    return _text_column(series).text
+
+
+def _column_dates(col: _TextColumn) -> tuple[pd.Series, np.ndarray]:
+    """Parse a text column's ISO dates once per distinct text (NaT where not a date); also
+    return an integer code per row that is equal exactly when the parsed dates are equal."""
+    parsed = pd.to_datetime(pd.Series(col.distinct, dtype=object).astype(str),
+                            format="%Y-%m-%d", errors="coerce")
+    values = parsed.to_numpy()
+    dates = pd.Series(values[col.codes], index=col.text.index, dtype="datetime64[ns]")
+    date_codes, _ = pd.factorize(values, use_na_sentinel=False)
+    return dates, date_codes.astype(np.int64)[col.codes]
 
 
 def _parse_dates(text: pd.Series) -> pd.Series:
@@ -423,16 +468,18 @@ def validate_forecasts(
             problems.extend(_no_rows_warning(raw, "forecast"))
     frame, labels = _stack(usable, FORECAST_COLUMNS)
     c = _Collector(frame, labels)
+    texts: dict[str, _TextColumn] = {}
     for col in ("model", "region", "quantity", "issued", "week_ending"):
-        frame[col] = _text(frame[col])
+        texts[col] = _text_column(frame[col])
+        frame[col] = texts[col].text
 
     for col, what in (("model", "the model name"), ("region", "the region"),
                       ("quantity", "the quantity")):
         c.add((frame[col] == "").to_numpy(), check="empty", column=col,
               message=f"{what} is empty", fix=f"fill in {what} on every row")
 
-    issued = _parse_dates(frame["issued"])
-    week_ending = _parse_dates(frame["week_ending"])
+    issued, issued_codes = _column_dates(texts["issued"])
+    week_ending, week_codes = _column_dates(texts["week_ending"])
     for col, parsed in (("issued", issued), ("week_ending", week_ending)):
         c.add(parsed.isna().to_numpy() & (frame[col] != "").to_numpy(), check="bad-date",
               column=col, message=f"{col} is not an ISO date",
@@ -464,11 +511,16 @@ def validate_forecasts(
           fix="check the two dates; a forecast of a week already over is not a forecast")
 
     # forecast identity from the text as written, so that bad dates group among themselves
-    fc, _ = group_codes([frame[k] for k in ("model", "region", "quantity", "issued",
-                                             "week_ending")])
+    fc, _ = group_codes([texts[k].codes for k in ("model", "region", "quantity", "issued",
+                                                   "week_ending")])
     # duplicates and crossing, on rows whose level is a number
     rlevel = np.where(level_ok, np.round(lv, _LEVEL_DECIMALS), np.nan)
-    order = np.lexsort((np.arange(len(frame)), rlevel, fc))
+    # rows sorted by forecast, then level (NaN last), then file order: one stable sort of a
+    # combined key (the rank of each level among the distinct levels) does what a three-key
+    # lexsort does, and is nearly linear on files already sorted by forecast and level
+    distinct_levels = np.sort(pd.unique(rlevel))
+    level_rank = np.searchsorted(distinct_levels, rlevel).astype(np.int64)
+    order = np.argsort(fc * max(distinct_levels.size, 1) + level_rank, kind="stable")
     fc_s, lv_s, vv_s = fc[order], rlevel[order], vv[order]
     # (np.r_[False, <empty>] would have one element too many when there are no rows)
     same_key = np.zeros(len(frame), dtype=bool)
@@ -537,9 +589,10 @@ def validate_forecasts(
     keep = ~quarantined & ~dup_identical
     clean = pd.DataFrame(
         {
-            "model": frame["model"].to_numpy()[keep],
-            "region": frame["region"].to_numpy()[keep],
-            "quantity": frame["quantity"].to_numpy()[keep],
+            # text columns stay in their own array type (no element-by-element conversion)
+            "model": frame["model"].array[keep],
+            "region": frame["region"].array[keep],
+            "quantity": frame["quantity"].array[keep],
             "issued": issued.to_numpy()[keep],
             "week_ending": week_ending.to_numpy()[keep],
             "level": rlevel[keep],
@@ -550,8 +603,14 @@ def validate_forecasts(
     clean_file = frame["_file"].to_numpy()[keep]
     clean_row = frame["_row"].to_numpy()[keep]
     problems.extend(c.problems)
-    problems.extend(_level_warnings(clean, clean_file, clean_row, labels, cm_levels))
-    problems.extend(_superseded_warnings(clean, clean_file, clean_row, labels))
+    # forecast identity of the clean rows from codes: text for the names, parsed dates
+    clean_fc = group_codes([texts["model"].codes[keep], texts["region"].codes[keep],
+                            texts["quantity"].codes[keep], issued_codes[keep],
+                            week_codes[keep]])
+    problems.extend(_level_warnings(clean, clean_file, clean_row, labels, cm_levels,
+                                    codes=clean_fc))
+    problems.extend(_superseded_warnings(clean, clean_file, clean_row, labels,
+                                         fc=clean_fc[0]))
     return ValidatedForecasts(
         table=clean.reset_index(drop=True),
         excluded=excluded.reset_index(drop=True),
@@ -592,12 +651,17 @@ def _excluded_forecasts(frame: pd.DataFrame, fc: np.ndarray, quarantined: np.nda
 
 
 def _level_warnings(clean: pd.DataFrame, files: np.ndarray, rows: np.ndarray,
-                    labels: Sequence[str], cm_levels: Sequence[float]) -> list[Problem]:
-    """Warn about forecasts that lack the median or a Classical Model level."""
+                    labels: Sequence[str], cm_levels: Sequence[float], *,
+                    codes: tuple[np.ndarray, int] | None = None) -> list[Problem]:
+    """Warn about forecasts that lack the median or a Classical Model level.
+
+    ``codes``: the forecast codes of ``clean`` and their number, if already known."""
     if clean.empty:
         return []
-    fc, n_fc = group_codes([clean[k] for k in ("model", "region", "quantity", "issued",
+    if codes is None:
+        codes = group_codes([clean[k] for k in ("model", "region", "quantity", "issued",
                                                 "week_ending")])
+    fc, n_fc = codes
     need = np.asarray(sorted(set(cm_levels) | {0.5}), dtype=float)
     lv = clean["level"].to_numpy()
     has = np.zeros((n_fc, need.size), dtype=bool)
@@ -629,11 +693,23 @@ def _level_warnings(clean: pd.DataFrame, files: np.ndarray, rows: np.ndarray,
 
 
 def _superseded_warnings(clean: pd.DataFrame, files: np.ndarray, rows: np.ndarray,
-                         labels: Sequence[str]) -> list[Problem]:
-    """Warn when a model has several forecasts for one target and horizon (the latest is used)."""
+                         labels: Sequence[str], *,
+                         fc: np.ndarray | None = None) -> list[Problem]:
+    """Warn when a model has several forecasts for one target and horizon (the latest is used).
+
+    ``fc``: the forecast codes of ``clean`` (first-appearance order), if already known."""
     if clean.empty:
         return []
-    heads = clean.drop_duplicates(["model", "region", "quantity", "issued", "week_ending"])
+    if fc is None:
+        heads = clean.drop_duplicates(["model", "region", "quantity", "issued", "week_ending"])
+    else:
+        # the first row of each forecast, in file order (as drop_duplicates keeps it): codes
+        # number forecasts by first appearance, so a first row is one whose code is new
+        seen = np.maximum.accumulate(fc) if fc.size else fc
+        first = np.ones(fc.size, dtype=bool)
+        first[1:] = fc[1:] > seen[:-1]
+        heads = clean.loc[first, ["model", "region", "quantity", "issued", "week_ending",
+                                  "horizon"]]
     dup = heads.duplicated(["model", "region", "quantity", "week_ending", "horizon"], keep="last")
     if not dup.any():
         return []

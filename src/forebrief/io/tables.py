@@ -9,10 +9,13 @@ from __future__ import annotations
 
 import glob
 import os
-from collections.abc import Iterable, Mapping, Sequence
+import warnings
+from collections.abc import Collection, Iterable, Mapping, Sequence
 from dataclasses import dataclass, field
 from pathlib import Path
+from typing import Any
 
+import numpy as np
 import pandas as pd
 
 from forebrief.errors import ConfigError, InputError
@@ -22,6 +25,10 @@ __all__ = ["RawFile", "parse_column_map", "read_raw_table", "resolve_inputs", "w
 _TABLE_SUFFIXES = (".csv", ".csv.gz", ".parquet", ".pq")
 #: Columns always read as text, so that an unparseable date is shown as written.
 _TEXT_COLUMNS = ("model", "region", "quantity", "issued", "week_ending", "reported")
+#: The type ``read_csv(dtype=str)`` gives a text column, and whether the parser gives text
+#: columns that type by itself (pandas' string type; an object column may mix types).
+_TEXT_DTYPE = pd.Series(["a"], dtype=str).dtype
+_TEXT_INFERRED = isinstance(_TEXT_DTYPE, pd.StringDtype)
 
 
 @dataclass(frozen=True)
@@ -89,6 +96,29 @@ def resolve_inputs(spec: str | os.PathLike[str] | Sequence[str | os.PathLike[str
     return found
 
 
+def _is_text(col: pd.Series | pd.DataFrame) -> bool:
+    """True if a column as read holds text only, as ``dtype=str`` would have given it."""
+    return isinstance(col, pd.Series) and col.dtype == _TEXT_DTYPE
+
+
+def _read_csv_inferred(path: Path, text_cols: Collection[str],
+                       options: Mapping[str, Any]) -> pd.DataFrame | None:
+    """Read a CSV letting the parser find the text columns; None if any came back otherwise.
+
+    Asking for text (``dtype=str``) costs more than letting the parser find it, so the caller
+    reads again as text only when a text column came back as numbers, booleans, all empty
+    or a mixture, or the parser warned (the second read then shows the warning as before).
+    """
+    if not _TEXT_INFERRED:
+        return None
+    with warnings.catch_warnings(record=True) as caught:
+        warnings.simplefilter("always")
+        frame = pd.read_csv(path, **options)
+    if caught or not all(_is_text(frame[c]) for c in text_cols):
+        return None
+    return frame
+
+
 def _is_table(path: Path) -> bool:
     name = path.name.lower()
     return name.endswith(_TABLE_SUFFIXES) and not name.startswith((".", "~"))
@@ -113,13 +143,14 @@ def read_raw_table(path: Path, *, columns: Mapping[str, str] | None = None) -> R
                 for orig, ours in zip(header.columns, names, strict=True)
                 if ours in _TEXT_COLUMNS
             }
-            frame = pd.read_csv(
-                path,
-                dtype=text_cols,
-                keep_default_na=False,
-                na_values=[""],
-                skipinitialspace=True,
-            )
+            options: dict[str, Any] = {
+                "keep_default_na": False,
+                "na_values": [""],
+                "skipinitialspace": True,
+            }
+            inferred = _read_csv_inferred(path, text_cols, options)
+            frame = (inferred if inferred is not None
+                     else pd.read_csv(path, dtype=text_cols, **options))
             first_row = 2
         else:
             raise InputError(
@@ -159,11 +190,38 @@ def read_raw_table(path: Path, *, columns: Mapping[str, str] | None = None) -> R
 
 
 def write_csv(frame: pd.DataFrame, path: Path, *, float_format: str = "%.10g") -> Path:
-    """Write a table as UTF-8 CSV with '\\n' line endings and ISO dates (deterministic bytes)."""
+    """Write a table as UTF-8 CSV with '\\n' line endings and ISO dates (deterministic bytes).
+
+    Dates and floats are turned into text here, once per distinct date and with one ``%``
+    per number: the same text pandas writes with ``float_format`` (``float_format % value``,
+    empty for NaN), at a tenth of the cost on large tables. O(cells).
+    """
     out = frame.copy()
-    for col in out.columns:
-        if pd.api.types.is_datetime64_any_dtype(out[col]):
-            out[col] = out[col].dt.strftime("%Y-%m-%d")
+    for i in range(out.shape[1]):
+        col = out.iloc[:, i]
+        if pd.api.types.is_datetime64_any_dtype(col):
+            out.isetitem(i, _date_text(col))
+        elif float_format and isinstance(col.dtype, np.dtype) and col.dtype.kind == "f":
+            out.isetitem(i, _float_text(col, float_format))
     path.parent.mkdir(parents=True, exist_ok=True)
     out.to_csv(path, index=False, lineterminator="\n", float_format=float_format)
     return path
+
+
+def _date_text(col: pd.Series) -> np.ndarray:
+    """YYYY-MM-DD per row (NaT stays missing), formatting each distinct date once."""
+    codes, uniques = pd.factorize(col)
+    texts = pd.Series(uniques).dt.strftime("%Y-%m-%d").to_numpy(dtype=object)
+    values = np.full(len(col), np.nan, dtype=object)
+    ok = codes >= 0
+    values[ok] = texts[codes[ok]]
+    return values
+
+
+def _float_text(col: pd.Series, float_format: str) -> np.ndarray:
+    """``float_format % v`` per number, '' for NaN (pandas' default na_rep in to_csv)."""
+    values = col.to_numpy()
+    text = np.full(values.size, "", dtype=object)
+    ok = ~np.isnan(values)
+    text[ok] = [float_format % v for v in values[ok].tolist()]
+    return text
