@@ -168,7 +168,8 @@ def test_wis_and_decomposition_through_the_engine() -> None:
     assert row["dispersion"] == pytest.approx(0.46)
     assert row["overprediction"] == pytest.approx(0.0)
     assert row["underprediction"] == pytest.approx(4.20)
-    assert row["within_50"] == 0 and row["within_90"] == 0
+    assert row["within_50"] == 0
+    assert row["within_90"] == 0
     assert row["abs_error"] == pytest.approx(7.0)
     assert row["bias"] == -1  # the median 5 is below the observation 12
 
@@ -189,7 +190,7 @@ def test_log_scale_wis() -> None:
 
 def test_window_bounds_and_observation_requirement() -> None:
     as_of = pd.Timestamp("2026-11-28")
-    weeks = [as_of - pd.Timedelta(days=7 * k) for k in range(0, 4)]  # 0, 1, 2, 3 weeks back
+    weeks = [as_of - pd.Timedelta(days=7 * k) for k in range(4)]  # 0, 1, 2, 3 weeks back
     rows = [
         _forecast_rows("m", np.array([1, 2, 3, 4, 5.0]), issued=w - pd.Timedelta(days=5),
                        week_ending=w)

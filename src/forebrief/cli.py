@@ -190,16 +190,16 @@ def _add_score_options(p: argparse.ArgumentParser, *, alpha_auto: bool = False,
 def _settings(args: argparse.Namespace, **overrides: Any) -> Any:
     from forebrief.scoring.engine import ScoreSettings
 
-    values = dict(
-        window=args.window,
-        alpha=args.alpha,
-        baseline=args.baseline,
-        levels=tuple(sorted(args.levels)),
-        overshoot=args.overshoot,
-        background=args.background,
-        scale=args.scale,
-        power=args.power,
-    )
+    values = {
+        "window": args.window,
+        "alpha": args.alpha,
+        "baseline": args.baseline,
+        "levels": tuple(sorted(args.levels)),
+        "overshoot": args.overshoot,
+        "background": args.background,
+        "scale": args.scale,
+        "power": args.power,
+    }
     values.update(overrides)
     return ScoreSettings(**values)
 
@@ -610,7 +610,6 @@ def _cmd_archive(args: argparse.Namespace, con: _Console) -> int:
         if not records:
             con.say(f"{root}: no records yet")
             return 0
-        from rich.table import Table
 
         titles = "; ".join(sorted({r.title for r in records}))
         lines = [f"Records in {root} ({titles})",

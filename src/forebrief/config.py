@@ -8,6 +8,7 @@ at all the run uses the defaults below.
 
 from __future__ import annotations
 
+import itertools
 import math
 import tomllib
 from collections.abc import Mapping
@@ -343,7 +344,7 @@ def _parse_scoring(s: Mapping[str, Any], cfg: dict[str, Any], source: Path | Non
             raise _err(source, "scoring.levels", f"must be a list of levels; got {lv!r}",
                        "write levels = [0.05, 0.25, 0.5, 0.75, 0.95]")
         vals = tuple(_number(v, "scoring.levels", source, low=0, high=1) for v in lv)
-        if any(b <= a for a, b in zip(vals, vals[1:], strict=False)) or vals[0] <= 0 or \
+        if any(b <= a for a, b in itertools.pairwise(vals)) or vals[0] <= 0 or \
                 vals[-1] >= 1:
             raise _err(source, "scoring.levels", f"must rise strictly inside (0, 1); got {lv!r}",
                        "write levels = [0.05, 0.25, 0.5, 0.75, 0.95]")

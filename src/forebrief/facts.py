@@ -101,7 +101,7 @@ def chance_text(p: float) -> str:
         return "about 1 in 10" if p >= 0.075 else "about 1 in 20"
     if p > 0.85:
         return "about 9 in 10" if p <= 0.925 else "about 19 in 20"
-    return f"about {int(round(p * 10))} in 10"
+    return f"about {round(p * 10)} in 10"
 
 
 def percent_text(p: float) -> str:
@@ -543,7 +543,7 @@ def _track(cfg: BriefingConfig, backtest: Any) -> tuple[list[TrackRow], list[dic
             quantity=str(r.quantity), horizon=int(r.horizon), n_items=n,
             relative_wis=None if rel is None else round(rel, 2),
             relative_wis_text="n/a" if rel is None else f"{rel:.2f}",
-            vs_baseline_text=vs, expected_in_90=int(round(0.9 * n)), in_50=n50, in_90=n90, in_50_text=f"{n50} of {n}", in_90_text=f"{n90} of {n}",
+            vs_baseline_text=vs, expected_in_90=round(0.9 * n), in_50=n50, in_90=n90, in_50_text=f"{n50} of {n}", in_90_text=f"{n90} of {n}",
         ))
     # the jurisdiction total, week by week, for the weighted pool one week ahead
     total_rows: list[dict[str, Any]] = []
@@ -744,8 +744,8 @@ def _data_notes(cfg: BriefingConfig, issued: pd.Timestamp, forecasts: pd.DataFra
     if not excluded.empty:
         for (kind, file, model), part in excluded.groupby(["kind", "file", "model"], sort=True):
             reasons = sorted({r.split(" (")[0] for r in part["reason"]})
-            short = "/".join(str(file).replace("\\", "/").split("/")[-2:])
-            quarantined.append({"kind": kind, "file": short, "model": model,
+            short_file = "/".join(str(file).replace("\\", "/").split("/")[-2:])
+            quarantined.append({"kind": kind, "file": short_file, "model": model,
                                 "count": len(part), "reasons": reasons})
     members = forecasts.loc[forecasts["model"] != cfg.baseline]
     recent_dates = sorted(d for d in members["issued"].unique() if d < issued)[-4:]
@@ -765,8 +765,9 @@ def _data_notes(cfg: BriefingConfig, issued: pd.Timestamp, forecasts: pd.DataFra
                 "direction": "up" if r.change > 0 else "down",
             })
     weeks = known.groupby(["region", "quantity"]).size()
-    short = [{"region": r, "region_name": cfg.region_name(r), "quantity": q, "weeks": int(n)}
-             for (r, q), n in weeks.items() if n < cfg.window]
+    short = [{"region": str(key[0]), "region_name": cfg.region_name(str(key[0])),
+              "quantity": str(key[1]), "weeks": int(n)}
+             for key, n in weeks.items() if n < cfg.window]
     return {"quarantined": quarantined, "missing_teams": missing, "new_teams": new,
             "revised": revised, "short_history": short,
             "n_revised": len(revised),

@@ -205,8 +205,8 @@ def _verdict_line(v: ModelVerdict) -> str:
 
 
 def _trust_section(facts: BriefingFacts) -> Section:
-    paras = []
-    bullets = []
+    paras: list[str] = []
+    bullets: list[str] = []
     for q in facts.quantities:
         models = facts.summary.get("models", {}).get(q["id"])
         if not models:

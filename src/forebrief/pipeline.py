@@ -170,7 +170,7 @@ PLACEHOLDER_RECIPIENT = "recipients-not-configured@forebrief.invalid"
 
 
 def _email_or_placeholder(email: Any) -> Any:
-    changes = {}
+    changes: dict[str, Any] = {}
     if not email.sender:
         changes["sender"] = PLACEHOLDER_SENDER
     if not email.to:

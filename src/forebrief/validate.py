@@ -396,7 +396,7 @@ def _parse_numbers(col: pd.Series) -> tuple[pd.Series, pd.Series]:
     """Return (numbers, shown text); text that is not a number becomes NaN (reported by caller)."""
     if pd.api.types.is_numeric_dtype(col) and not pd.api.types.is_bool_dtype(col):
         values = col.astype(float)
-        return values, _NumberText(values)  # type: ignore[return-value]
+        return values, _NumberText(values)
     text = _text(col)
     values = pd.to_numeric(text, errors="coerce").astype(float)
     return values, text
@@ -672,7 +672,7 @@ def _level_warnings(clean: pd.DataFrame, files: np.ndarray, rows: np.ndarray,
     if not lacking.any():
         return []
     problems = []
-    bad_rows = lacking[fc]
+    bad_rows = np.asarray(lacking)[fc]
     df = pd.DataFrame({"file": files[bad_rows], "model": clean["model"].to_numpy()[bad_rows],
                        "row": rows[bad_rows], "fc": fc[bad_rows]})
     for (file_code, model), part in df.groupby(["file", "model"], sort=True):

@@ -19,7 +19,7 @@ def _fetcher_class() -> Any:
         raise ConfigError("WeasyPrint is needed for the PDF; fix: pip install weasyprint") \
             from exc
 
-    class OfflineFetcher(URLFetcher):  # type: ignore[misc, valid-type]
+    class OfflineFetcher(URLFetcher):
         """Loads only data: URIs and local files; refuses every network address."""
 
         def __init__(self) -> None:

@@ -13,8 +13,7 @@ import math
 from dataclasses import dataclass
 
 import numpy as np
-from scipy.special import rel_entr
-from scipy.special import chdtrc
+from scipy.special import chdtrc, rel_entr
 
 from forebrief.errors import ConfigError
 
