@@ -375,7 +375,19 @@ def _cmd_ensemble(args: argparse.Namespace, con: _Console) -> int:
         inputs = load_inputs(args.forecasts, args.observations, columns=_columns(args),
                              signed=_signed(args), as_of=args.issued)
         stage("weights and pools")
-        result = build_ensemble(inputs.forecasts.table, inputs.observations.table,
+        table = inputs.forecasts.table
+        if settings.include_baseline and settings.baseline:
+            from forebrief.backtest import issue_dates_between
+            from forebrief.ensemble import with_baseline
+
+            # the generated persistence forecast joins as a member, for every issue date so
+            # that its record can be rated like any model's (built from data known then)
+            dates = issue_dates_between(table, pd.Timestamp.min, args.issued,
+                                        exclude={settings.baseline})
+            table, _generated = with_baseline(table, inputs.observations.table,
+                                              issue_dates=dates, name=settings.baseline,
+                                              signed=settings.signed)
+        result = build_ensemble(table, inputs.observations.table,
                                 issued=args.issued, settings=settings)
         stage("writing")
         write_tables({"ensemble.csv": result.ensemble, "weights.csv": result.weights,
@@ -561,11 +573,14 @@ def _cmd_demo(args: argparse.Namespace, con: _Console) -> int:
 
     with con.stages(8) as stage:
         outcome = record_briefing(cfg, issued=None, stage=stage)
+    con.say("The scenario includes one team's deliberately malformed file; the lines below "
+            "show how forebrief reports it (only the faulty forecasts are set aside):")
     _report_problems(outcome.problems, con)
     record = outcome.record.path
     con.out.print(str(record), markup=False)
-    con.say(f"briefing written: {record / 'briefing.txt'}; rerun it with "
-            f"forebrief brief --config {out / 'forebrief.toml'}")
+    con.say(f"briefing written: open {record / 'briefing.pdf'} or {record / 'briefing.html'} "
+            f"(plain text: briefing.txt); the weekly command is forebrief brief --config "
+            f"{out / 'forebrief.toml'}")
     return 0
 
 

@@ -23,8 +23,13 @@ __all__ = ["FigureView", "render_html", "template_environment"]
 
 #: CSS pixels per inch, and the dpi the PNG charts are drawn at.
 _CSS_DPI = 96
-_SECTION_OF = {"outlook": "outlook", "fan": "outlook", "reliability": "trust",
-               "weights": "trust", "track": "track"}
+_SECTION_OF = {
+    "outlook": "outlook",
+    "fan": "outlook",
+    "reliability": "trust",
+    "weights": "trust",
+    "track": "track",
+}
 
 
 @dataclass(frozen=True)
@@ -40,6 +45,12 @@ class FigureView:
     width_px: int
     height_px: int
     wide: bool = False
+    #: The figure kind, the key's first part (``fan``, ``outlook``, ...), for the CSS class.
+    kind: str = ""
+    #: The quantity id the figure belongs to ("" when the key names none of them).
+    quantity: str = ""
+    #: Taller than wide (a grid of many regions): print lets it fill a page, not a band.
+    tall: bool = False
 
 
 def _png_size(png: bytes) -> tuple[int, int]:
@@ -54,19 +65,34 @@ def _png_size(png: bytes) -> tuple[int, int]:
 PRINT_KINDS = ("fan", "outlook", "reliability", "track")
 
 
-def figure_views(charts: Sequence[Any], *, images: Literal["png", "svg"] = "png",
-                 dpi: int = 200, only_quantity: str | None = None) -> list[FigureView]:
+def _quantity_of(rest: str, quantities: Sequence[str]) -> str:
+    """The quantity a key's remainder (``<quantity>`` or ``<quantity>_<region>``) names;
+    the longest match wins, so ``beds`` and ``beds_icu`` are told apart."""
+    hits = [q for q in quantities if rest == q or rest.startswith(q + "_")]
+    return max(hits, key=len) if hits else ""
+
+
+def figure_views(
+    charts: Sequence[Any],
+    *,
+    images: Literal["png", "svg"] = "png",
+    dpi: int = 200,
+    only_quantity: str | None = None,
+    quantities: Sequence[str] = (),
+) -> list[FigureView]:
     """Turn chart specs (key, title, caption, alt, png, svg) into embeddable figures.
 
     With ``only_quantity`` (the printed briefing) only the lead quantity's figures of the
-    kinds in :data:`PRINT_KINDS` are kept.
+    kinds in :data:`PRINT_KINDS` are kept. ``quantities`` (the quantity ids) lets each figure
+    name its quantity, so the templates can place it beside that quantity's table.
     """
     out = []
     for c in charts:
         kind, _, rest = c.key.partition("_")
-        if only_quantity is not None and (kind not in PRINT_KINDS
-                                          or not (rest == only_quantity
-                                                  or rest.startswith(only_quantity + "_"))):
+        if only_quantity is not None and (
+            kind not in PRINT_KINDS
+            or not (rest == only_quantity or rest.startswith(only_quantity + "_"))
+        ):
             continue
         w, h = _png_size(c.png)
         if images == "svg":
@@ -74,12 +100,22 @@ def figure_views(charts: Sequence[Any], *, images: Literal["png", "svg"] = "png"
         else:
             src = "data:image/png;base64," + base64.b64encode(c.png).decode()
         prefix = c.key.split("_")[0].split(":")[0]
-        out.append(FigureView(
-            key=c.key, section=getattr(c, "section", None) or _SECTION_OF.get(prefix, "outlook"),
-            title=c.title, caption=c.caption, alt=c.alt, src=src,
-            width_px=round(w * _CSS_DPI / dpi), height_px=round(h * _CSS_DPI / dpi),
-            wide=getattr(c, "wide", False),
-        ))
+        out.append(
+            FigureView(
+                key=c.key,
+                section=getattr(c, "section", None) or _SECTION_OF.get(prefix, "outlook"),
+                title=c.title,
+                caption=c.caption,
+                alt=c.alt,
+                src=src,
+                width_px=round(w * _CSS_DPI / dpi),
+                height_px=round(h * _CSS_DPI / dpi),
+                wide=getattr(c, "wide", False),
+                kind=prefix,
+                quantity=_quantity_of(rest, quantities),
+                tall=h > w,
+            )
+        )
     return out
 
 
@@ -95,8 +131,10 @@ def template_environment(templates_dir: Path | None = None) -> jinja2.Environmen
         from forebrief.errors import ConfigError
 
         if not Path(templates_dir).is_dir():
-            raise ConfigError(f"templates_dir {templates_dir}: no such folder; fix: point "
-                              "[briefing] templates_dir at a folder of templates, or remove it")
+            raise ConfigError(
+                f"templates_dir {templates_dir}: no such folder; fix: point "
+                "[briefing] templates_dir at a folder of templates, or remove it"
+            )
         loaders.append(jinja2.FileSystemLoader(str(templates_dir)))
     loaders.append(jinja2.PrefixLoader({"forebrief": shipped}))
     loaders.append(shipped)
@@ -130,20 +168,29 @@ def _outlook_tables(facts: BriefingFacts) -> list[dict[str, Any]]:
                 continue
             lead = cells.get(first) or next(iter(cells.values()))
             thr = lead.p_above_threshold_text
-            rows.append({
-                "region_name": r["name"], "is_total": r["is_total"],
-                "last_value_text": lead.last_value_text,
-                "last_provisional": lead.last_provisional,
-                "cells": [cells[h] for h in horizons if h in cells],
-                "threshold_cell": (f"{thr} (line: {lead.threshold_text})" if thr
-                                   else "no alert line set"),
-            })
-        tables.append({
-            "caption": f"{q['name']} ({q['unit']}): combined forecast by region",
-            "horizons": [{"label": _horizon_label(h), "week": f"week ending {weeks[h]}"}
-                         for h in horizons],
-            "rows": rows,
-        })
+            rows.append(
+                {
+                    "region_name": r["name"],
+                    "is_total": r["is_total"],
+                    "last_value_text": lead.last_value_text,
+                    "last_provisional": lead.last_provisional,
+                    "cells": [cells[h] for h in horizons if h in cells],
+                    "threshold_cell": (
+                        f"{thr} (line: {lead.threshold_text})" if thr else "no alert line set"
+                    ),
+                }
+            )
+        tables.append(
+            {
+                "quantity": q["id"],
+                "caption": f"{q['name']} ({q['unit']}): combined forecast by region",
+                "horizons": [
+                    {"label": _horizon_label(h), "week": f"week ending {weeks[h]}"}
+                    for h in horizons
+                ],
+                "rows": rows,
+            }
+        )
     return tables
 
 
@@ -152,8 +199,7 @@ _VERDICT_CLASS = {"reliable": "reliable", "not yet rated": "unrated"}
 
 def _trust_table(facts: BriefingFacts) -> dict[str, Any]:
     """One row per model, one group of cells per quantity: verdict, weight, relative error."""
-    quantities = [q for q in facts.quantities if any(v.quantity == q["id"]
-                                                     for v in facts.verdicts)]
+    quantities = [q for q in facts.quantities if any(v.quantity == q["id"] for v in facts.verdicts)]
     models: list[str] = []
     for v in facts.verdicts:
         if v.model not in models:
@@ -163,15 +209,21 @@ def _trust_table(facts: BriefingFacts) -> dict[str, Any]:
     for m in models:
         cells = []
         for q in quantities:
-            v = by_key.get((m, q["id"]))
-            cells.append(None if v is None else {
-                **v.__dict__, "verdict_class": _VERDICT_CLASS.get(v.verdict, "warning")})
+            found = by_key.get((m, q["id"]))
+            cells.append(
+                None
+                if found is None
+                else {
+                    **found.__dict__,
+                    "verdict_class": _VERDICT_CLASS.get(found.verdict, "warning"),
+                }
+            )
         rows.append({"model": m, "cells": cells})
     lead = facts.summary.get("lead_quantity")
     why = [v for v in facts.verdicts if v.quantity == lead]
     return {
         "caption": "Each model's recent record: verdict, weight next week, and error "
-                   "relative to \"same as last week\"",
+        'relative to "same as last week"',
         "quantities": [q["name"] for q in quantities],
         "rows": rows,
         "why_title": next((q["name"] for q in quantities if q["id"] == lead), ""),
@@ -183,12 +235,13 @@ def _track_table(facts: BriefingFacts) -> dict[str, Any]:
     first = min(facts.horizons) if facts.horizons else 1
     order = {"weighted_pool": 0, "equal_pool": 1, "quantile_median": 2}
     names = {q["id"]: q["name"] for q in facts.quantities}
-    rows = sorted((t for t in facts.track if t.horizon == first),
-                  key=lambda t: (t.quantity, order.get(t.method, 9)))
+    rows = sorted(
+        (t for t in facts.track if t.horizon == first),
+        key=lambda t: (t.quantity, order.get(t.method, 9)),
+    )
     return {
         "caption": f"Next-week forecasts over the last {facts.track_weeks} issue dates",
-        "rows": [{**t.__dict__, "quantity_name": names.get(t.quantity, t.quantity)}
-                 for t in rows],
+        "rows": [{**t.__dict__, "quantity_name": names.get(t.quantity, t.quantity)} for t in rows],
     }
 
 
@@ -213,9 +266,12 @@ def render_html(
         outlook_tables=_outlook_tables(facts),
         trust=_trust_table(facts),
         track_table=_track_table(facts),
-        charts=figure_views(charts, images=images,
-                            only_quantity=facts.summary.get("lead_quantity") if for_print
-                            else None),
+        charts=figure_views(
+            charts,
+            images=images,
+            only_quantity=facts.summary.get("lead_quantity") if for_print else None,
+            quantities=[str(q["id"]) for q in facts.quantities],
+        ),
         for_print=for_print,
         paper="letter" if paper == "letter" else "A4",
     )

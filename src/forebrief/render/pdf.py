@@ -54,7 +54,7 @@ def render_pdf(html: str, *, pdf_variant: str | None = None,
     except ImportError as exc:  # pragma: no cover
         raise ConfigError("WeasyPrint is needed for the PDF; fix: pip install weasyprint") \
             from exc
-    doc = HTML(string=html, base_url=None, url_fetcher=OfflineFetcher())
+    doc = HTML(string=html, base_url=None, url_fetcher=OfflineFetcher())  # nothing fetched yet
     kwargs: dict[str, Any] = {}
     if pdf_variant:
         kwargs["pdf_variant"] = pdf_variant
@@ -67,6 +67,15 @@ def render_pdf(html: str, *, pdf_variant: str | None = None,
         ]
     if identifier:
         kwargs["pdf_identifier"] = identifier
-    out = doc.write_pdf(**kwargs)
+    from weasyprint.urls import FatalURLFetchingError
+
+    try:
+        out = doc.write_pdf(**kwargs)
+    except FatalURLFetchingError as exc:  # a BaseException: turn it into our clear error
+        raise ConfigError(
+            f"the briefing's templates refer to a resource that would be fetched over the "
+            f"network ({exc}); fix: embed it (a data: URI) or point to a local file in "
+            "[briefing] templates_dir"
+        ) from None
     assert out is not None
     return bytes(out)
