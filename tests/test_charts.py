@@ -410,6 +410,62 @@ def test_reliability_chart_places_every_model(
     _save(_fig(ax), artifacts, f"reliability_{q}")
 
 
+@pytest.mark.parametrize("q", ["admissions", "deaths"])
+@pytest.mark.parametrize("dpi", [200, 72])
+def test_reliability_labels_stay_clear_in_the_exported_layout(
+    facts: BriefingFacts, q: str, dpi: int
+) -> None:
+    # the layout the exports use: solved and frozen at the PNG's 200 dpi (as briefing_figures
+    # does), then measured at 200 dpi (the PNG) and at 72 (the SVG's user units)
+    ax = charts.reliability_chart(facts, q)
+    fig = _fig(ax)
+    charts._freeze_layout(fig, dpi=200)
+    fig.set_dpi(dpi)
+    fig.draw_without_rendering()
+    r = fig.canvas.get_renderer()
+    scale = dpi / 72.0
+    dots = {}
+    for c in ax.collections:
+        gid = str(c.get_gid())
+        if isinstance(c, PathCollection) and (gid.startswith("model:") or gid.endswith("_pool")):
+            (px, py), rad = (
+                ax.transData.transform(c.get_offsets()[0]),
+                np.sqrt(c.get_sizes()[0]) / 2,
+            )
+            dots[gid] = matplotlib.transforms.Bbox.from_extents(
+                px - rad * scale, py - rad * scale, px + rad * scale, py + rad * scale
+            )
+    labels = {
+        str(a.get_gid()): a.get_window_extent(r)
+        for a in ax.texts
+        if str(a.get_gid()).startswith("label:")
+    }
+    leaders = {str(a.get_gid()): a for a in ax.texts if str(a.get_gid()).startswith("leader:")}
+    assert labels
+    assert len(dots) == len(labels)
+    assert leaders  # the demo's crowded corner needs some
+    items = list(labels.items())
+    for i, (ga, a) in enumerate(items):
+        for gb, b in items[i + 1 :]:
+            assert not a.overlaps(b), f"{ga} overlaps {gb} at {dpi} dpi"
+        for gd, d in dots.items():
+            assert not a.overlaps(d), f"{ga} covers {gd} at {dpi} dpi"
+        # the name sits inside the plot area
+        assert ax.get_window_extent(r).contains(a.x0, a.y0)
+        assert ax.get_window_extent(r).contains(a.x1, a.y1)
+    for gl, leader in leaders.items():
+        patch = leader.arrow_patch
+        ends = patch.get_transform().transform(patch.get_path().vertices)
+        line = ends[0] + (ends[-1] - ends[0]) * np.linspace(0, 1, 50)[:, None]
+        for ga, a in labels.items():
+            if ga == gl.replace("leader:", "label:"):
+                continue
+            inside = (line[:, 0] > a.x0) & (line[:, 0] < a.x1)
+            inside &= (line[:, 1] > a.y0) & (line[:, 1] < a.y1)
+            assert not inside.any(), f"{gl} runs through {ga} at {dpi} dpi"
+    charts._close(fig)
+
+
 def test_reliability_chart_prefers_per_horizon_scores(facts: BriefingFacts) -> None:
     # when the facts' weights carry the per-horizon scores, those are what is placed
     q, h = "admissions", 2

@@ -801,7 +801,7 @@ def reliability_chart(
     Dot size shows the weight at ``horizon`` (default the first), marker and colour the
     verdict; the dashed line is that horizon's calibration cutoff alpha, the grey dotted one
     the verdict's test level; the star is the weighted pool when the facts give its scores.
-    Cost: O(models^2) for label placement.
+    Cost: O(models^2 x candidates^2) for label placement (see :func:`_place_labels`).
     """
     _check_quantity(facts, quantity)
     h = min(facts.horizons) if horizon is None else horizon
@@ -1042,7 +1042,8 @@ def _draw_reliability(
     names = [p[0] for p in shown] + [
         ("combined" if k == "weighted_pool" else "equal") for k, *_r in pool_pts
     ]
-    _place_labels(ax, xs, ys, names, sizes)
+    rules = [v for v in (alpha, None if level is None else float(level)) if v is not None]
+    _place_labels(ax, xs, ys, names, sizes, lines_x=rules)
 
 
 def _decades(floor: float) -> list[float]:
@@ -1054,6 +1055,37 @@ def _decades(floor: float) -> list[float]:
     return sorted(ticks)
 
 
+#: Where a model's name may go, in the order tried: (dx, dy, ha, va), the offset's direction.
+_LABEL_DIRECTIONS: tuple[tuple[float, float, str, str], ...] = (
+    (1, 0, "left", "center"),
+    (-1, 0, "right", "center"),
+    (0, 1, "center", "bottom"),
+    (0, -1, "center", "top"),
+    (1, 1, "left", "bottom"),
+    (-1, 1, "right", "bottom"),
+    (1, -1, "left", "top"),
+    (-1, -1, "right", "top"),
+    (0.4, 1, "left", "bottom"),
+    (-0.4, 1, "right", "bottom"),
+    (0.4, -1, "left", "top"),
+    (-0.4, -1, "right", "top"),
+    (1, 0.5, "left", "bottom"),
+    (-1, 0.5, "right", "bottom"),
+    (1, -0.5, "left", "top"),
+    (-1, -0.5, "right", "top"),
+)
+#: How far beyond the dot's edge (points), and whether a leader line joins label and dot.
+_LABEL_REACHES = ((3.0, False), (14.0, True), (26.0, True), (40.0, True), (56.0, True))
+#: Clear space kept around each label (points, x and y).
+_LABEL_PAD = (2.0, 1.5)
+#: Repair rounds after the greedy pass (used only when the search finds nothing).
+_LABEL_ROUNDS = 6
+#: Most steps the label search may take before falling back to the greedy pass.
+_LABEL_SEARCH = 20000
+#: Gap between a leader line and the name it points from (points).
+_LEADER_GAP = 1.5
+
+
 def _renderer(fig: Any) -> Any:
     canvas = fig.canvas
     if hasattr(canvas, "get_renderer"):
@@ -1062,82 +1094,263 @@ def _renderer(fig: Any) -> Any:
 
 
 def _place_labels(
-    ax: Axes, xs: Sequence[float], ys: Sequence[float], names: Sequence[str], sizes: Sequence[float]
+    ax: Axes,
+    xs: Sequence[float],
+    ys: Sequence[float],
+    names: Sequence[str],
+    sizes: Sequence[float],
+    *,
+    lines_x: Sequence[float] = (),
 ) -> None:
-    """Name each point beside it, trying eight directions, then further out with a leader,
-    so that no label overlaps a point, another label or the axes' edge (greedy)."""
+    """Name each point beside it, trying sixteen directions, then further out with a leader
+    line, so that nothing a reader sees collides.
+
+    A name (gid ``label:<name>``) is kept off every dot, every other name, the vertical lines
+    at ``lines_x`` (data) and the axes' edge; a name without a leader sits nearer its own dot
+    than any other; a leader (a separate artist, gid ``leader:<name>``) keeps off every
+    other name, every other leader and every dot but the ones it starts from. Names and dots
+    are padded by ``_LABEL_PAD`` points, so a layout re-solved at another dpi (the PNG's, or
+    the SVG's 72) still leaves them apart. Every candidate is measured once with the
+    figure's renderer, after its layout is solved; then a depth-first search (fewest options
+    first, nearest candidate first) looks for a placement where nothing touches, and should
+    none exist within ``_LABEL_SEARCH`` steps, a greedy pass with repair keeps the placement
+    touching least. Cost: O(models^2 x candidates^2) for the conflict tables, the search
+    bounded by ``_LABEL_SEARCH``.
+    """
     if not names:
         return
     fig = _figure_of(ax)
     fig.draw_without_rendering()
     renderer = _renderer(fig)
     scale = fig.dpi / 72.0
+    pad = np.array(_LABEL_PAD) * scale
+    grow = np.concatenate([-pad, pad])
+    n_labels = len(names)
     pix = ax.transData.transform(np.column_stack([xs, ys]))
-    taken = []
-    for (px, py), s in zip(pix, sizes, strict=True):
-        r = np.sqrt(s) / 2 * scale
-        taken.append((px - r, py - r, px + r, py + r))
+    radii = np.sqrt(np.asarray(sizes, dtype=float)) / 2  # points
+    r_pix = radii * scale
+    dots = np.column_stack([pix - r_pix[:, None], pix + r_pix[:, None]])
+    # dots that overlap one another read as one blob: a leader may leave it anywhere
+    blob = _boxes_meet(dots[:, None, :], dots[None, :, :])
     box = ax.get_window_extent(renderer)
-    dirs = [
-        (1, 0, "left", "center"),
-        (-1, 0, "right", "center"),
-        (0, 1, "center", "bottom"),
-        (0, -1, "center", "top"),
-        (1, 1, "left", "bottom"),
-        (-1, 1, "right", "bottom"),
-        (1, -1, "left", "top"),
-        (-1, -1, "right", "top"),
+    rules = [float(ax.transData.transform((x, ys[0]))[0]) for x in lines_x]
+    steps = np.linspace(0.0, 1.0, 24)[None, :, None]
+    options = [
+        (reach, with_leader, direction)
+        for reach, with_leader in _LABEL_REACHES
+        for direction in _LABEL_DIRECTIONS
     ]
+    lead = np.array([with_leader for _r, with_leader, _d in options])
+    share = {"left": 0.0, "center": 0.5, "right": 1.0, "bottom": 0.0, "top": 1.0}
+    align = np.array([(share[ha], share[va]) for _r, _w, (_x, _y, ha, va) in options])
 
-    def overlaps(bb: Any) -> int:
-        n = sum(1 for (a, b, c, d) in taken if bb.x0 < c and bb.x1 > a and bb.y0 < d and bb.y1 > b)
-        outside = bb.x0 < box.x0 or bb.x1 > box.x1 or bb.y0 < box.y0 or bb.y1 > box.y1
-        return n + (10 if outside else 0)
+    # measure every candidate once: its name's box, its leader, what it touches on its own
+    offs, padded, lines, alone = [], [], [], []
+    for i in range(n_labels):
+        off = np.array(
+            [
+                (dx * (radii[i] + r), dy * (radii[i] + r) * 0.8)
+                for r, _w, (dx, dy, _h, _v) in options
+            ]
+        )
+        # a name's box only moves with its anchor: measure it once, place it by alignment
+        probe = ax.annotate(names[i], (xs[i], ys[i]), fontsize=7, ha="left", va="bottom")
+        bb = probe.get_window_extent(renderer)
+        probe.remove()
+        size = np.array([bb.width, bb.height])
+        anchor = pix[i] + off * scale
+        lower = anchor - size * align
+        text = np.column_stack([lower, lower + size])
+        u = anchor - pix[i]
+        u /= np.hypot(u[:, 0], u[:, 1])[:, None]
+        a = pix[i] + u * r_pix[i]
+        b = anchor - u * _LEADER_GAP * scale
+        line = a[:, None, :] + (b - a)[:, None, :] * steps  # (K, samples, 2)
+        n = _boxes_meet(text[:, None, :], dots[None, :, :]).sum(axis=1)
+        n += sum(((text[:, 0] - pad[0] < x) & (x < text[:, 2] + pad[0])).astype(int) for x in rules)
+        gaps = np.stack([_box_gaps(t, pix) for t in text]) - r_pix[None, :]
+        n += (~lead) & np.any((gaps < gaps[:, i : i + 1]) & ~blob[i][None, :], axis=1)
+        near = np.flatnonzero(~blob[i])
+        n += lead * _points_in_boxes(line, dots[near] + grow).sum(axis=1)
+        outside = (
+            (text[:, 0] < box.x0)
+            | (text[:, 2] > box.x1)
+            | (text[:, 1] < box.y0)
+            | (text[:, 3] > box.y1)
+        )
+        offs.append(off)
+        padded.append(text + grow)
+        lines.append(line)
+        alone.append(n + 10 * outside)
 
-    order = np.argsort(-np.asarray(ys, dtype=float), kind="stable")
-    for i in order:
-        r_pt = np.sqrt(sizes[i]) / 2
-        best = None
-        for reach, lead in ((3.0, False), (14.0, True), (26.0, True)):
-            for dx, dy, ha, va in dirs:
-                d = r_pt + reach
-                off = (dx * d, dy * d * 0.8)
-                ann = ax.annotate(
-                    names[i],
-                    (xs[i], ys[i]),
-                    xytext=off,
-                    textcoords="offset points",
-                    ha=ha,
-                    va=va,
-                    fontsize=7,
-                    color=INK,
-                    zorder=8,
-                    gid=f"label:{names[i]}",
-                    arrowprops={
-                        "arrowstyle": "-",
-                        "color": INK_SOFT,
-                        "lw": 0.6,
-                        "shrinkA": 0,
-                        "shrinkB": r_pt,
-                    }
-                    if lead
-                    else None,
-                )
-                bb = ann.get_window_extent(renderer)
-                score = overlaps(bb)
-                if best is None or score < best[0]:
-                    if best is not None:
-                        best[1].remove()
-                    best = (score, ann, bb)
-                else:
-                    ann.remove()
-                if score == 0:
-                    break
-            if best is not None and best[0] == 0:
-                break
-        assert best is not None
-        bb = best[2]
-        taken.append((bb.x0 - 1, bb.y0 - 1, bb.x1 + 1, bb.y1 + 1))
+    # what two candidates of two names do to each other (symmetric)
+    clash: dict[tuple[int, int], np.ndarray] = {}
+    for i in range(n_labels):
+        for j in range(i + 1, n_labels):
+            c = _boxes_meet(padded[i][:, None, :], padded[j][None, :, :])
+            c |= lead[:, None] & _points_in_boxes(lines[i], padded[j])
+            c |= lead[None, :] & _points_in_boxes(lines[j], padded[i]).T
+            c |= (lead[:, None] & lead[None, :]) & _segments_cross(
+                lines[i][:, None, 0],
+                lines[i][:, None, -1],
+                lines[j][None, :, 0],
+                lines[j][None, :, -1],
+            )
+            clash[i, j], clash[j, i] = c, c.T
+
+    choice = _search_labels(alone, clash) or _greedy_labels(
+        alone,
+        clash,
+        order=[int(k) for k in np.argsort(-np.asarray(ys, dtype=float), kind="stable")],
+    )
+    for i, k in enumerate(choice):
+        _r, with_leader, (_dx, _dy, ha, va) = options[k]
+        ann = ax.annotate(
+            names[i],
+            (xs[i], ys[i]),
+            xytext=tuple(offs[i][k]),
+            textcoords="offset points",
+            ha=ha,
+            va=va,
+            fontsize=7,
+            color=INK,
+            zorder=8,
+            gid=f"label:{names[i]}",
+        )
+        ann.set_in_layout(False)  # labels must not move the axes they were fitted to
+        if with_leader:
+            leader = ax.annotate(
+                "",
+                (xs[i], ys[i]),
+                xytext=tuple(offs[i][k]),
+                textcoords="offset points",
+                zorder=7,
+                gid=f"leader:{names[i]}",
+                arrowprops={
+                    "arrowstyle": "-",
+                    "color": INK_SOFT,
+                    "lw": 0.6,
+                    "shrinkA": _LEADER_GAP,
+                    "shrinkB": float(radii[i]),
+                },
+            )
+            leader.set_in_layout(False)
+            if leader.arrow_patch is not None:  # the SVG names the line drawn, too
+                leader.arrow_patch.set_gid(f"leader:{names[i]}")
+
+
+def _search_labels(
+    alone: Sequence[np.ndarray], clash: Mapping[tuple[int, int], np.ndarray]
+) -> list[int] | None:
+    """A candidate per name such that nothing touches, or None: depth-first, the name with
+    fewest options left first, each name's options in order (nearest first), forward
+    checking, at most ``_LABEL_SEARCH`` steps; then each name moved to its nearest option
+    that still touches nothing. Cost: bounded by ``_LABEL_SEARCH`` x names x candidates.
+    """
+    n = len(alone)
+    steps = 0
+
+    def go(assign: dict[int, int], free: dict[int, np.ndarray]) -> dict[int, int] | None:
+        nonlocal steps
+        if not free:
+            return assign
+        i = min(free, key=lambda j: (int(free[j].sum()), j))
+        for k in np.flatnonzero(free[i]):
+            steps += 1
+            if steps > _LABEL_SEARCH:
+                return None
+            rest = {j: free[j] & ~clash[i, j][k] for j in free if j != i}
+            if all(v.any() for v in rest.values()):
+                found = go({**assign, i: int(k)}, rest)
+                if found is not None:
+                    return found
+        return None
+
+    found = go({}, {i: alone[i] == 0 for i in range(n)})
+    if found is None:
+        return None
+    # the first placement found may reach further than it needs: bring each name to its
+    # nearest option that still touches nothing, until none moves
+    choice = [found[i] for i in range(n)]
+    moved = True
+    while moved:
+        moved = False
+        for i in range(n):
+            ok = alone[i] == 0
+            for j in range(n):
+                if j != i:
+                    ok &= ~clash[i, j][:, choice[j]]
+            k = int(np.argmax(ok))
+            if k < choice[i]:
+                choice[i], moved = k, True
+    return choice
+
+
+def _greedy_labels(
+    alone: Sequence[np.ndarray],
+    clash: Mapping[tuple[int, int], np.ndarray],
+    *,
+    order: Sequence[int],
+) -> list[int]:
+    """A candidate per name touching as little as possible: greedy in ``order``, then each
+    name placed again against all the others for ``_LABEL_ROUNDS`` rounds. Cost:
+    O(rounds x names^2 x candidates)."""
+    choice: dict[int, int] = {}
+
+    def cost(i: int, others: Mapping[int, int]) -> np.ndarray:
+        return alone[i] + sum(clash[i, j][:, k].astype(int) for j, k in others.items())
+
+    for i in (int(v) for v in order):
+        choice[i] = int(np.argmin(cost(i, choice)))
+    for _round in range(_LABEL_ROUNDS):
+        moved = False
+        for i in list(choice):
+            c = cost(i, {j: k for j, k in choice.items() if j != i})
+            k = int(np.argmin(c))
+            if c[k] < c[choice[i]]:
+                choice[i], moved = k, True
+        if not moved:
+            break
+    return [choice[i] for i in range(len(alone))]
+
+
+def _points_in_boxes(lines: np.ndarray, boxes: np.ndarray) -> np.ndarray:
+    """(K, samples, 2) polylines against (M, 4) boxes: whether any sample of line k lies
+    inside box m, as (K, M)."""
+    x = lines[:, None, :, 0]
+    y = lines[:, None, :, 1]
+    b = boxes[None, :, None, :]
+    inside = (x > b[..., 0]) & (x < b[..., 2]) & (y > b[..., 1]) & (y < b[..., 3])
+    return np.asarray(inside.any(axis=2), dtype=bool)
+
+
+def _boxes_meet(a: np.ndarray, b: np.ndarray) -> np.ndarray:
+    """Whether boxes (x0, y0, x1, y1) overlap, broadcasting over leading axes."""
+    return (
+        (a[..., 0] < b[..., 2])
+        & (a[..., 2] > b[..., 0])
+        & (a[..., 1] < b[..., 3])
+        & (a[..., 3] > b[..., 1])
+    )
+
+
+def _box_gaps(bb: np.ndarray, points: np.ndarray) -> np.ndarray:
+    """Distance from the box (x0, y0, x1, y1) to each point (0 inside)."""
+    dx = np.maximum.reduce([bb[0] - points[:, 0], np.zeros(len(points)), points[:, 0] - bb[2]])
+    dy = np.maximum.reduce([bb[1] - points[:, 1], np.zeros(len(points)), points[:, 1] - bb[3]])
+    return np.hypot(dx, dy)
+
+
+def _segments_cross(p1: np.ndarray, p2: np.ndarray, q1: np.ndarray, q2: np.ndarray) -> np.ndarray:
+    """Whether segments p1-p2 and q1-q2 properly cross (orientation test; common practice),
+    broadcasting over leading axes of the (..., 2) end points."""
+
+    def side(a: np.ndarray, b: np.ndarray, c: np.ndarray) -> np.ndarray:
+        return (b[..., 0] - a[..., 0]) * (c[..., 1] - a[..., 1]) - (b[..., 1] - a[..., 1]) * (
+            c[..., 0] - a[..., 0]
+        )
+
+    return (side(q1, q2, p1) * side(q1, q2, p2) < 0) & (side(p1, p2, q1) * side(p1, p2, q2) < 0)
 
 
 def reliability_alt_text(facts: BriefingFacts, quantity: str, *, horizon: int | None = None) -> str:
