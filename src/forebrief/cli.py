@@ -731,12 +731,17 @@ def _cmd_send(args: argparse.Namespace, con: _Console) -> int:
     from forebrief.delivery import password_from_env_or_prompt, recipients_of, send_message
     from forebrief.errors import DeliveryError
 
-    record_dir: Path = args.record
+    record_dir: Path = args.record.resolve()
     eml = record_dir / "briefing.eml"
     if not eml.is_file():
         raise DeliveryError(f"{eml}: no e-mail in this record; fix: give the folder of a record "
                             "written by forebrief brief (ARCHIVE/YYYY-MM-DD)")
-    record = arc.find_record(record_dir.parent, record_dir.name)
+    matches = [r for r in arc.list_records(record_dir.parent)
+               if r.path.resolve() == record_dir]
+    if not matches:
+        raise DeliveryError(f"{record_dir}: not a complete record of an archive; fix: give a "
+                            "folder listed by forebrief archive list")
+    record = matches[0]
     cfg = config_from_dict(record.manifest.get("config", {}))
     mail = cfg.email
     data = eml.read_bytes()

@@ -212,6 +212,11 @@ def record_briefing(
     d = pd.Timestamp(issued) if issued is not None else latest_issue_date(
         inputs.forecasts.table, baseline=cfg.baseline)
     existing = [r for r in list_records(cfg.archive) if r.issued == f"{d:%Y-%m-%d}"]
+    if revise_reason is not None and not existing:
+        raise ArchiveError(
+            f"{cfg.archive}: there is no record for {d:%Y-%m-%d} to revise; fix: run without "
+            "--revise to write the first record for that date"
+        )
     if existing and revise_reason is None:
         raise ArchiveError(
             f"{existing[-1].path}: a record for {d:%Y-%m-%d} already exists and is never "
