@@ -51,7 +51,8 @@ def _readme_commands() -> list[str]:
 def test_readme_opens_with_the_job_and_has_two_quick_start_commands() -> None:
     text = (ROOT / "README.md").read_text(encoding="utf-8")
     first = next(p for p in text.split("\n\n") if p.strip() and not p.startswith("#"))
-    assert len(first) > 400 and "briefing" in first
+    assert len(first) > 400
+    assert "briefing" in first
     commands = _readme_commands()
     assert len(commands) == 2
     assert "forebrief demo" in commands[0]
