@@ -566,6 +566,15 @@ def _cmd_demo(args: argparse.Namespace, con: _Console) -> int:
     except OSError as exc:
         raise ConfigError(f"{out}: cannot create the demo folder ({exc.strerror}); fix: "
                           "choose another --out") from None
+    from forebrief.archive import list_records
+    from forebrief.errors import ArchiveError
+
+    done = list_records(out / "archive")
+    if done:
+        raise ArchiveError(
+            f"the demo already ran in {out}: its record is {done[-1].path}; nothing was "
+            f"changed; fix: open that record, or run forebrief demo --out ANOTHER_FOLDER"
+        )
     write_scenario(generate_scenario(), out)
     cfg = load_config(out / "forebrief.toml").with_overrides(archive=out / "archive")
     con.say(f"demo inputs written to {out} (an invented scenario); running the weekly briefing")
