@@ -874,34 +874,14 @@ def _draw_reliability(
         ys.append(inf)
         sizes.append(_size(weight))
     pool_pts = []
-    if (
-        arow is not None
-        and arow.get("pool_calibration") is not None
-        and arow.get("pool_information") is not None
+    for key, prefix, marker, size in (
+        ("weighted_pool", "pool", "*", 170.0),
+        ("equal_pool", "equal_pool", "P", 110.0),
     ):
-        pool_pts.append(
-            (
-                "weighted_pool",
-                float(arow["pool_calibration"]),
-                float(arow["pool_information"]),
-                "*",
-                170.0,
-            )
-        )
-    if (
-        arow is not None
-        and arow.get("equal_pool_calibration") is not None
-        and arow.get("equal_pool_information") is not None
-    ):
-        pool_pts.append(
-            (
-                "equal_pool",
-                float(arow["equal_pool_calibration"]),
-                float(arow["equal_pool_information"]),
-                "P",
-                110.0,
-            )
-        )
+        cal_v = None if arow is None else arow.get(f"{prefix}_calibration")
+        inf_v = None if arow is None else arow.get(f"{prefix}_information")
+        if cal_v is not None and inf_v is not None:
+            pool_pts.append((key, float(cal_v), float(inf_v), marker, size))
     for key, cal, inf, marker, s in pool_pts:
         ax.scatter(
             [xpos(cal)],
