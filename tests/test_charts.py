@@ -21,6 +21,7 @@ from __future__ import annotations
 
 import dataclasses
 import json
+import re
 import struct
 import subprocess
 import sys
@@ -124,6 +125,13 @@ def _png_text_keys(png: bytes) -> list[bytes]:
             keys.append(data.split(b"\0", 1)[0])
         i += 12 + length
     return keys
+
+
+def _svg_font_px(svg: str, text: str) -> float:
+    """The font size of the SVG ``<text>`` element whose content is exactly ``text``."""
+    found = re.findall(rf"<text[^>]*font-size: ([0-9.]+)px[^>]*>{re.escape(text)}</text>", svg)
+    assert found, f"no <text> {text!r} in the SVG"
+    return float(found[0])
 
 
 def _dates(values: list[str]) -> np.ndarray:
@@ -763,6 +771,44 @@ def test_briefing_figures_every_chart_ready_to_place(facts: BriefingFacts, artif
     import matplotlib.pyplot as plt  # only to confirm nothing was left open
 
     assert plt.get_fignums() == []
+
+
+def test_email_figures_one_larger_text_fan_for_the_mail_column(
+    facts: BriefingFacts, artifacts: Path
+) -> None:
+    specs = charts.email_figures(facts, dpi=200)
+    assert len(specs) == 1
+    (spec,) = specs
+    q, total = facts.summary["lead_quantity"], facts.total_region
+    assert spec.key == f"email_fan_{q}_{total}"
+    assert spec.section == "email"
+    # pixels = inches x dpi (a PNG's IHDR width and height, PNG spec 11.2.2)
+    w_in, h_in = charts.EMAIL_FAN_SIZE
+    assert _png_size(spec.png) == (round(w_in * 200), round(h_in * 200))
+    assert b"Software" not in _png_text_keys(spec.png)
+    again = charts.email_figures(facts, dpi=200)[0]
+    assert again.png == spec.png
+    assert again.svg == spec.svg
+    # same words as the PDF's fan chart of the same region
+    pdf_fan = next(s for s in charts.briefing_figures(facts) if s.key == f"fan_{q}_{total}")
+    assert (spec.title, spec.caption, spec.alt) == (pdf_fan.title, pdf_fan.caption, pdf_fan.alt)
+    row = _rows(facts, total or "", q)[0]
+    assert row.median_text in spec.alt
+    # every text is drawn EMAIL_TEXT_SCALE times the PDF's size: axis label, a tick, the legend
+    for text in (row.unit, "Oct", "observed"):
+        assert _svg_font_px(spec.svg, text) == pytest.approx(
+            _svg_font_px(pdf_fan.svg, text) * charts.EMAIL_TEXT_SCALE, abs=0.01
+        ), text
+    (artifacts / f"{spec.key}.png").write_bytes(spec.png)
+
+
+def test_email_figures_without_a_total_use_the_first_region(facts: BriefingFacts) -> None:
+    no_total = dataclasses.replace(facts, total_available=False)
+    q = facts.summary["lead_quantity"]
+    first = next(o for o in facts.outlook if o.quantity == q)
+    (spec,) = charts.email_figures(no_total, dpi=60)
+    assert spec.key == f"email_fan_{q}_{first.region}"
+    assert spec.alt == charts.fan_alt_text(facts, first.region, q)
 
 
 def test_facts_from_the_archive_give_the_same_figures(facts: BriefingFacts) -> None:

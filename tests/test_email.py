@@ -396,6 +396,25 @@ def test_first_outlook_chart_when_there_is_no_total_fan(facts, narrative, charts
     assert email_chart(facts, only_trust) is None
 
 
+def test_the_fan_drawn_for_the_mail_is_preferred(facts, narrative, charts) -> None:
+    q = facts.summary["lead_quantity"]
+    own = StandInChart(
+        f"email_fan_{q}_{facts.total_region}",
+        "Outlook for the whole jurisdiction",
+        "Median with 50% and 90% ranges.",
+        "Fan chart: about 1,540 next week.",
+        "<svg/>",
+        _png("fan for the mail"),
+        section="email",
+    )
+    assert email_chart(facts, [*charts, own]) is own
+    assert email_chart(facts, [own, *charts]) is own
+    # the built message inlines that PNG, not the A4-column fan's
+    msg = _parse(_build(facts, narrative, [*charts, own]))
+    inline = [p.get_content() for p in msg.walk() if p.get_content_type() == "image/png"]
+    assert inline == [own.png]
+
+
 # --------------------------------------------------------------------------------------------
 # hostile values and refusals
 

@@ -40,6 +40,7 @@ from matplotlib.backends.backend_agg import FigureCanvasAgg
 from matplotlib.figure import Figure
 from matplotlib.lines import Line2D
 from matplotlib.patches import Patch
+from matplotlib.text import Text
 from matplotlib.ticker import FixedLocator, FuncFormatter, MaxNLocator, NullLocator
 
 from forebrief.facts import BriefingFacts, ModelVerdict, OutlookRow, TrackRow
@@ -52,6 +53,7 @@ __all__ = [
     "ChartSpec",
     "briefing_figures",
     "coverage_chart",
+    "email_figures",
     "fan_alt_text",
     "fan_chart",
     "figure_png",
@@ -159,6 +161,11 @@ FAN_SIZE = (COLUMN_WIDTH, 3.4)
 PANEL_HEIGHT = 1.8
 RELIABILITY_SIZE = (COLUMN_WIDTH, 4.2)
 TRACK_SIZE = (COLUMN_WIDTH, 5.6)
+#: The e-mail's fan chart: shown about 552 px wide, so drawn narrower with larger text
+#: (8 pt labels on a 6.85 in figure come out near 9 px there; common practice, no source).
+#: The legend sits below the axes, hence the extra height.
+EMAIL_FAN_SIZE = (5.5, 3.8)
+EMAIL_TEXT_SCALE = 1.25
 
 _SVG_HASHSALT = "forebrief-charts"
 _FONT = "DejaVu Sans"
@@ -1928,6 +1935,75 @@ def briefing_figures(facts: BriefingFacts, *, dpi: int = 200) -> list[ChartSpec]
                 )
             )
     return specs
+
+
+def _scale_text(fig: Figure, factor: float) -> None:
+    """Make every text of a drawn figure ``factor`` times larger, in place.
+
+    Tick labels go through ``set_tick_params`` so that ticks made at draw time match too.
+    """
+    tick_sizes = []
+    for ax in fig.axes:
+        for axis in (ax.xaxis, ax.yaxis):
+            major = axis.get_major_ticks()
+            if major:
+                tick_sizes.append((axis, float(major[0].label1.get_fontsize())))
+    texts = {id(t): t for t in fig.findobj(Text)}
+    for t in texts.values():
+        t.set_fontsize(float(t.get_fontsize()) * factor)
+    for axis, size in tick_sizes:
+        axis.set_tick_params(which="both", labelsize=size * factor)
+
+
+def email_figures(facts: BriefingFacts, *, dpi: int = 200) -> list[ChartSpec]:
+    """The e-mail's own figure: the lead quantity's jurisdiction-total fan chart, sized for mail.
+
+    Drawn :data:`EMAIL_FAN_SIZE` inches with every text :data:`EMAIL_TEXT_SCALE` times larger
+    than in the PDF, so its labels stay legible in a 552 px e-mail column. The region is the
+    jurisdiction total when the facts have one, else the first region of the lead quantity's
+    outlook. Key ``email_fan_<quantity>_<region>``, section ``"email"``; title, caption and alt
+    text as for the PDF's fan chart. Empty when the lead quantity has no outlook. Cost: one fan
+    chart, two renders.
+    """
+    lead = facts.summary.get("lead_quantity") if facts.summary else None
+    rows = [o for o in facts.outlook if o.quantity == lead]
+    if lead is None or not rows:
+        return []
+    qid = str(lead)
+    name = str(_quantity_info(facts, qid)["name"])
+    total = facts.total_region if facts.total_available else None
+    region: str = (
+        total if total is not None and any(o.region == total for o in rows) else rows[0].region
+    )
+    first = min((o for o in rows if o.region == region), key=lambda o: o.horizon)
+    with _style():
+        ax = _new_axes(EMAIL_FAN_SIZE)
+    fan_chart(facts, region, qid, ax=ax)
+    fig = _figure_of(ax)
+    # the same legend, moved below the axes in two columns so the data get the full width
+    side = ax.get_legend()
+    if side is not None:
+        handles = [h for h in side.legend_handles if h is not None]
+        labels = [
+            t.get_text()
+            for t, h in zip(side.get_texts(), side.legend_handles, strict=True)
+            if h is not None
+        ]
+        side.remove()
+        with _style():
+            fig.legend(handles, labels, loc="outside lower center", ncols=2)
+    _scale_text(fig, EMAIL_TEXT_SCALE)
+    return [
+        _spec(
+            fig,
+            key=f"email_fan_{qid}_{region}",
+            title=f"{name}: outlook for {first.region_name}",
+            caption=_fan_caption(facts, first),
+            alt=fan_alt_text(facts, region, qid),
+            section="email",
+            dpi=dpi,
+        )
+    ]
 
 
 def _figure_of(ax: Axes) -> Figure:

@@ -45,8 +45,7 @@ __all__ = [
 ]
 
 #: Files of the PDF/A-3 briefing that travel inside it as attachments.
-PDF_ATTACHMENTS: tuple[str, ...] = ("facts.json", "ensemble.csv", "scores_by_model.csv",
-                                    MANIFEST)
+PDF_ATTACHMENTS: tuple[str, ...] = ("facts.json", "ensemble.csv", "scores_by_model.csv", MANIFEST)
 
 
 @dataclass(frozen=True)
@@ -74,8 +73,15 @@ def render_briefing(run: BriefingRun) -> Rendered:
     cfg = run.config
     charts = tuple(briefing_figures(run.facts))
     html = render_html(run.facts, run.narrative, charts, templates_dir=cfg.templates_dir)
-    print_html = render_html(run.facts, run.narrative, charts, templates_dir=cfg.templates_dir,
-                             for_print=True, paper=cfg.paper, images="svg")
+    print_html = render_html(
+        run.facts,
+        run.narrative,
+        charts,
+        templates_dir=cfg.templates_dir,
+        for_print=True,
+        paper=cfg.paper,
+        images="svg",
+    )
     images = {f"charts/{c.key}.png": c.png for c in charts}
     return Rendered(html, print_html, charts, images)
 
@@ -83,14 +89,16 @@ def render_briefing(run: BriefingRun) -> Rendered:
 def _data_files(run: BriefingRun, rendered: Rendered) -> dict[str, bytes]:
     problems = "\n".join(p.line() for p in run.inputs.problems)
     files: dict[str, bytes] = {name: csv_bytes(frame) for name, frame in run.tables().items()}
-    files.update({
-        "briefing.txt": run.text.encode("utf-8"),
-        "briefing.html": rendered.html.encode("utf-8"),
-        "problems.txt": (problems + ("\n" if problems else "")).encode("utf-8"),
-        "facts.json": json_bytes(run.facts.to_dict()),
-        "ensemble_summary.json": json_bytes(run.ensemble.summary),
-        **rendered.images,
-    })
+    files.update(
+        {
+            "briefing.txt": run.text.encode("utf-8"),
+            "briefing.html": rendered.html.encode("utf-8"),
+            "problems.txt": (problems + ("\n" if problems else "")).encode("utf-8"),
+            "facts.json": json_bytes(run.facts.to_dict()),
+            "ensemble_summary.json": json_bytes(run.ensemble.summary),
+            **rendered.images,
+        }
+    )
     return files
 
 
@@ -99,13 +107,17 @@ def _decisions(run: BriefingRun) -> dict[str, Any]:
     cfg = run.config
     w = run.ensemble.weights
     members = [
-        {"model": r.model, "quantity": r.quantity, "horizon": int(r.horizon),
-         "weight": round(float(r.weight), 6), "status": r.status}
+        {
+            "model": r.model,
+            "quantity": r.quantity,
+            "horizon": int(r.horizon),
+            "weight": round(float(r.weight), 6),
+            "status": r.status,
+        }
         for r in w.itertuples(index=False)
     ]
     excluded = [
-        {k: str(v) for k, v in row.items()}
-        for row in run.inputs.excluded.to_dict(orient="records")
+        {k: str(v) for k, v in row.items()} for row in run.inputs.excluded.to_dict(orient="records")
     ]
     obs = run.inputs.observations.table
     vintage = None
@@ -115,12 +127,21 @@ def _decisions(run: BriefingRun) -> dict[str, Any]:
     return {
         "issued": f"{run.issued:%Y-%m-%d}",
         "window_weeks": cfg.window,
-        "alpha": [{"quantity": g["quantity"], "horizon": g["horizon"], "alpha": g["alpha"],
-                   "how": ("optimised: the cutoff that gave the weighted pool the highest "
-                           "combined score on the window" if g["alpha_mode"] == "auto"
-                           else "fixed in the configuration"),
-                   "equal_weight_fallback": g["equal_weight_fallback"]}
-                  for g in run.ensemble.summary["groups"]],
+        "alpha": [
+            {
+                "quantity": g["quantity"],
+                "horizon": g["horizon"],
+                "alpha": g["alpha"],
+                "how": (
+                    "optimised: the cutoff that gave the weighted pool the highest "
+                    "combined score on the window"
+                    if g["alpha_mode"] == "auto"
+                    else "fixed in the configuration"
+                ),
+                "equal_weight_fallback": g["equal_weight_fallback"],
+            }
+            for g in run.ensemble.summary["groups"]
+        ],
         "members": members,
         "excluded": excluded,
         "data_as_of": run.facts.data_as_of,
@@ -131,27 +152,43 @@ def _decisions(run: BriefingRun) -> dict[str, Any]:
     }
 
 
-def _sealer(run: BriefingRun, rendered: Rendered, created: dt.datetime
-            ) -> Callable[[bytes, Mapping[str, bytes]], Mapping[str, bytes]]:
+def _sealer(
+    run: BriefingRun, rendered: Rendered, created: dt.datetime
+) -> Callable[[bytes, Mapping[str, bytes]], Mapping[str, bytes]]:
     """Build the PDF/A-3b (data attached) and the e-mail once the manifest is known."""
 
     def seal(manifest: bytes, files: Mapping[str, bytes]) -> dict[str, bytes]:
+        from forebrief.charts import email_figures
         from forebrief.render.pdf import render_pdf
 
-        attached = {name: files.get(name, manifest if name == MANIFEST else b"")
-                    for name in PDF_ATTACHMENTS}
+        attached = {
+            name: files.get(name, manifest if name == MANIFEST else b"") for name in PDF_ATTACHMENTS
+        }
         attached[MANIFEST] = manifest
-        pdf = render_pdf(rendered.print_html, pdf_variant="pdf/a-3b", attachments=attached,
-                         identifier=f"forebrief-{run.issued:%Y-%m-%d}".encode(),
-                         created=created)
+        pdf = render_pdf(
+            rendered.print_html,
+            pdf_variant="pdf/a-3b",
+            attachments=attached,
+            identifier=f"forebrief-{run.issued:%Y-%m-%d}".encode(),
+            created=created,
+        )
         out = {"briefing.pdf": pdf}
         try:
             from forebrief.render.email import build_message
         except ImportError:  # pragma: no cover - during development only
             return out
-        msg = build_message(run.facts, run.narrative, rendered.charts, pdf,
-                            email=_email_or_placeholder(run.config.email), created=created,
-                            templates_dir=run.config.templates_dir)
+        # the e-mail gets its own fan chart, drawn for its narrower column; it is not one
+        # of the record's charts/ files
+        charts = (*rendered.charts, *email_figures(run.facts))
+        msg = build_message(
+            run.facts,
+            run.narrative,
+            charts,
+            pdf,
+            email=_email_or_placeholder(run.config.email),
+            created=created,
+            templates_dir=run.config.templates_dir,
+        )
         out["briefing.eml"] = msg.as_bytes()
         return out
 
@@ -180,8 +217,7 @@ def _email_or_placeholder(email: Any) -> Any:
 
 def _input_files(inputs: Any, label_root: Path | None) -> list[InputFile]:
     out = []
-    for role, validated in (("forecasts", inputs.forecasts), ("observations",
-                                                              inputs.observations)):
+    for role, validated in (("forecasts", inputs.forecasts), ("observations", inputs.observations)):
         for label in validated.files:
             path = Path(label)
             if not path.is_absolute() and label_root is not None:
@@ -207,10 +243,19 @@ def record_briefing(
     step = stage or (lambda _name: None)
     step(STAGES[0])
     root = _label_root(cfg)
-    inputs = load_inputs(cfg.forecasts, cfg.observations, columns=cfg.columns,
-                         signed=cfg.signed, as_of=issued, label_root=root)
-    d = pd.Timestamp(issued) if issued is not None else latest_issue_date(
-        inputs.forecasts.table, baseline=cfg.baseline)
+    inputs = load_inputs(
+        cfg.forecasts,
+        cfg.observations,
+        columns=cfg.columns,
+        signed=cfg.signed,
+        as_of=issued,
+        label_root=root,
+    )
+    d = (
+        pd.Timestamp(issued)
+        if issued is not None
+        else latest_issue_date(inputs.forecasts.table, baseline=cfg.baseline)
+    )
     existing = [r for r in list_records(cfg.archive) if r.issued == f"{d:%Y-%m-%d}"]
     if revise_reason is not None and not existing:
         raise ArchiveError(
@@ -220,7 +265,7 @@ def record_briefing(
     if existing and revise_reason is None:
         raise ArchiveError(
             f"{existing[-1].path}: a record for {d:%Y-%m-%d} already exists and is never "
-            "overwritten; nothing was changed; fix: pass --revise --reason \"...\" to write a "
+            'overwritten; nothing was changed; fix: pass --revise --reason "..." to write a '
             "revision, or use another archive folder or --issued date"
         )
     prev_dir = latest_record_before(cfg.archive, d)
@@ -232,7 +277,10 @@ def record_briefing(
     created = created or dt.datetime.now(dt.UTC).replace(microsecond=0)
     files = _data_files(run, rendered)
     record = write_record(
-        cfg.archive, d, files=files, inputs=_input_files(inputs, root),
+        cfg.archive,
+        d,
+        files=files,
+        inputs=_input_files(inputs, root),
         manifest={
             "tool": "forebrief",
             "tool_version": __version__,
@@ -254,8 +302,10 @@ def record_briefing(
 def _input_specs(cfg: BriefingConfig, root: Path | None) -> dict[str, list[str]]:
     from forebrief.workflow import input_label
 
-    return {"forecasts": [input_label(Path(p), root) for p in cfg.forecasts],
-            "observations": [input_label(Path(p), root) for p in cfg.observations]}
+    return {
+        "forecasts": [input_label(Path(p), root) for p in cfg.forecasts],
+        "observations": [input_label(Path(p), root) for p in cfg.observations],
+    }
 
 
 # --------------------------------------------------------------------------------------------
@@ -294,8 +344,9 @@ def reproduce_record(archive: Path, date: str) -> ReproduceReport:
             observations=tuple(root / s.lstrip("/") for s in specs.get("observations", [])),
             archive=root / "archive",
         )
-        inputs = load_inputs(cfg.forecasts, cfg.observations, columns=cfg.columns,
-                             signed=cfg.signed, label_root=root)
+        inputs = load_inputs(
+            cfg.forecasts, cfg.observations, columns=cfg.columns, signed=cfg.signed, label_root=root
+        )
         previous = None
         if m.get("compared_with"):
             previous = read_facts(archive / m["compared_with"])

@@ -200,15 +200,19 @@ def _png_size(png: bytes, key: str) -> tuple[int, int]:
 def email_chart(facts: BriefingFacts, charts: Sequence[Any]) -> Any | None:
     """The one chart the e-mail shows: the jurisdiction-total fan chart, else an outlook chart.
 
-    Keys start with the figure kind (``fan_<quantity>_<region>``, ``outlook_<quantity>``);
-    the lead quantity of the headline is preferred. None when there is neither.
+    Keys start with the figure kind (``email_fan_<quantity>_<region>``, drawn for the e-mail
+    column, comes first; then ``fan_<quantity>_<region>``, ``outlook_<quantity>``); the lead
+    quantity of the headline is preferred. None when there is none of these.
     """
     lead = facts.summary.get("lead_quantity")
     total = facts.total_region if facts.total_available else None
+    own = [c for c in charts if str(c.key).startswith("email_fan_")]
     fans = [c for c in charts if str(c.key).startswith("fan_")]
     outlooks = [c for c in charts if str(c.key).startswith("outlook_")]
     preferred = (
-        [c for c in fans if total and c.key == f"fan_{lead}_{total}"]
+        [c for c in own if str(c.key).startswith(f"email_fan_{lead}_")]
+        + own
+        + [c for c in fans if total and c.key == f"fan_{lead}_{total}"]
         + [c for c in fans if total and str(c.key).endswith(f"_{total}")]
         + [c for c in outlooks if c.key == f"outlook_{lead}"]
         + outlooks
