@@ -324,6 +324,11 @@ class ReproduceReport:
         return not self.different and not self.missing
 
 
+def _inside(label: str) -> str:
+    """A relative path that cannot leave the folder it is joined to (as archived)."""
+    return label.lstrip("/").replace("..", "_")
+
+
 def reproduce_record(archive: Path, date: str) -> ReproduceReport:
     """Rerun a record's analysis from its archived inputs and configuration; compare outputs."""
     rec = find_record(archive, date)
@@ -332,7 +337,7 @@ def reproduce_record(archive: Path, date: str) -> ReproduceReport:
         root = Path(tmp)
         for item in m.get("inputs", []):
             blob = (rec.path / item["stored"]).read_bytes()
-            target = root / item["label"].lstrip("/")
+            target = root / _inside(item["label"])
             target.parent.mkdir(parents=True, exist_ok=True)
             target.write_bytes(gzip.decompress(blob))
         cfg = config_from_dict(m["config"])
@@ -340,8 +345,8 @@ def reproduce_record(archive: Path, date: str) -> ReproduceReport:
         cfg = replace(
             cfg,
             source=root / "forebrief.toml",
-            forecasts=tuple(root / s.lstrip("/") for s in specs.get("forecasts", [])),
-            observations=tuple(root / s.lstrip("/") for s in specs.get("observations", [])),
+            forecasts=tuple(root / _inside(s) for s in specs.get("forecasts", [])),
+            observations=tuple(root / _inside(s) for s in specs.get("observations", [])),
             archive=root / "archive",
         )
         inputs = load_inputs(
