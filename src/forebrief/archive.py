@@ -48,7 +48,7 @@ from typing import Any
 import pandas as pd
 
 from forebrief.errors import ArchiveError
-from forebrief.io.outputs import json_ready
+from forebrief.io.outputs import json_bytes, json_ready
 
 __all__ = [
     "INDEX",
@@ -102,12 +102,6 @@ def canonical_json(payload: Any) -> bytes:
         separators=(",", ":"),
         ensure_ascii=False,
         allow_nan=False,
-    ).encode("utf-8")
-
-
-def pretty_json(payload: Any) -> bytes:
-    return (
-        json.dumps(json_ready(payload), indent=2, ensure_ascii=False, allow_nan=False) + "\n"
     ).encode("utf-8")
 
 
@@ -426,7 +420,7 @@ def write_record(
                 for n, b in sorted(files.items())
             ],
         }
-        manifest_bytes = pretty_json(man)
+        manifest_bytes = json_bytes(man)
         sealed = dict(seal(manifest_bytes, files)) if seal else {}
         everything = {**data, MANIFEST: manifest_bytes, **sealed}
         everything[SUMS] = _sums_text(everything)

@@ -11,9 +11,17 @@ from typing import Any
 import pandas as pd
 
 from forebrief.errors import InputError
-from forebrief.io.tables import write_csv
+from forebrief.io.tables import csv_bytes, write_csv
 
-__all__ = ["ensure_out_dir", "json_ready", "write_json", "write_table", "write_tables"]
+__all__ = [
+    "csv_bytes",
+    "ensure_out_dir",
+    "json_bytes",
+    "json_ready",
+    "write_json",
+    "write_table",
+    "write_tables",
+]
 
 
 def ensure_out_dir(path: Path) -> Path:
@@ -60,8 +68,7 @@ def json_ready(value: Any) -> Any:
 def write_json(payload: Any, path: Path) -> Path:
     """Write JSON deterministically (UTF-8, two-space indent, a final newline)."""
     path.parent.mkdir(parents=True, exist_ok=True)
-    text = json.dumps(json_ready(payload), indent=2, ensure_ascii=False, allow_nan=False)
-    path.write_text(text + "\n", encoding="utf-8")
+    path.write_bytes(json_bytes(payload))
     return path
 
 
@@ -81,19 +88,6 @@ def write_table(frame: pd.DataFrame, path: Path) -> Path:
         raise InputError(f"{path}: cannot be written ({exc.strerror}); "
                          "fix: choose a folder you can write to") from None
     raise InputError(f"{path}: unknown file type; fix: end the name in .csv or .parquet")
-
-
-def csv_bytes(frame: pd.DataFrame, *, float_format: str = "%.10g") -> bytes:
-    """A table as the exact bytes :func:`forebrief.io.tables.write_csv` writes."""
-    import io
-
-    out = frame.copy()
-    for col in out.columns:
-        if pd.api.types.is_datetime64_any_dtype(out[col]):
-            out[col] = out[col].dt.strftime("%Y-%m-%d")
-    buf = io.StringIO()
-    out.to_csv(buf, index=False, lineterminator="\n", float_format=float_format)
-    return buf.getvalue().encode("utf-8")
 
 
 def json_bytes(payload: Any) -> bytes:

@@ -8,6 +8,7 @@ as text so that a bad entry can be quoted back to the user exactly as it was wri
 from __future__ import annotations
 
 import glob
+import io
 import os
 import warnings
 from collections.abc import Collection, Iterable, Mapping, Sequence
@@ -190,7 +191,14 @@ def read_raw_table(path: Path, *, columns: Mapping[str, str] | None = None) -> R
 
 
 def write_csv(frame: pd.DataFrame, path: Path, *, float_format: str = "%.10g") -> Path:
-    """Write a table as UTF-8 CSV with '\\n' line endings and ISO dates (deterministic bytes).
+    """Write a table as UTF-8 CSV with '\\n' line endings and ISO dates (deterministic bytes)."""
+    path.parent.mkdir(parents=True, exist_ok=True)
+    path.write_bytes(csv_bytes(frame, float_format=float_format))
+    return path
+
+
+def csv_bytes(frame: pd.DataFrame, *, float_format: str = "%.10g") -> bytes:
+    """A table as the exact bytes of its CSV file (UTF-8, '\\n' line endings, ISO dates).
 
     Dates and floats are turned into text here, once per distinct date and with one ``%``
     per number: the same text pandas writes with ``float_format`` (``float_format % value``,
@@ -203,9 +211,9 @@ def write_csv(frame: pd.DataFrame, path: Path, *, float_format: str = "%.10g") -
             out.isetitem(i, _date_text(col))
         elif float_format and isinstance(col.dtype, np.dtype) and col.dtype.kind == "f":
             out.isetitem(i, _float_text(col, float_format))
-    path.parent.mkdir(parents=True, exist_ok=True)
-    out.to_csv(path, index=False, lineterminator="\n", float_format=float_format)
-    return path
+    buf = io.StringIO()
+    out.to_csv(buf, index=False, lineterminator="\n", float_format=float_format)
+    return buf.getvalue().encode("utf-8")
 
 
 def _date_text(col: pd.Series) -> np.ndarray:
