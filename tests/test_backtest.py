@@ -16,7 +16,6 @@ import pandas as pd
 import pytest
 
 from forebrief.backtest import backtest
-from forebrief.cli import main
 from forebrief.ensemble import EnsembleSettings, build_ensemble
 from forebrief.errors import ConfigError
 from forebrief.workflow import load_inputs
@@ -26,7 +25,7 @@ START = pd.Timestamp("2026-09-21")
 END = pd.Timestamp("2026-11-09")
 ISSUES = tuple(pd.date_range(START, END, freq="7D"))  # write_season issues weekly on Mondays
 TEAMS = {"lanternfox", "mossgrove", "tidewick", "emberlark"}
-METHODS = {"weighted_pool", "equal_pool", "quantile_median"}
+METHODS = {"weighted_pool", "equal_pool", "quantile_median", "recalibrated_pool"}
 
 
 def season_tables(root: Path, **kwargs: object) -> tuple[pd.DataFrame, pd.DataFrame]:
@@ -195,21 +194,6 @@ def test_bad_periods_are_refused(season: tuple[pd.DataFrame, pd.DataFrame]) -> N
 
 # --------------------------------------------------------------------------------------------
 # the command line
-
-
-@pytest.fixture
-def run(capsys: pytest.CaptureFixture[str]) -> Run:
-    """Call ``main(argv)``; return (exit code, stdout, stderr)."""
-
-    def call(*argv: object) -> tuple[int, str, str]:
-        try:
-            code = main([str(a) for a in argv])
-        except SystemExit as exc:
-            code = int(exc.code) if exc.code is not None else 0
-        out, err = capsys.readouterr()
-        return code, out, err
-
-    return call
 
 
 def test_backtest_command(tmp_path: Path, run: Run) -> None:

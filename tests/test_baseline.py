@@ -1,8 +1,8 @@
 """Tests of the persistence baseline (forebrief.baseline).
 
-Reference values come from /work/shared/METHODS.md §7 and its check table (rows B1, B2),
+Reference values come from docs/methods.md §7 and its check table (rows B1, B2),
 which follow the published description in Cramer et al. (2022), PNAS 119(15):e2113561119,
-Methods (baseline model), with the [design choice] details of METHODS §7. The fast quantile
+Methods (baseline model), with the [design choice] details of docs/methods.md §7. The fast quantile
 path is checked against numpy's ``np.quantile`` (method 'linear', Hyndman & Fan 1996
 definition 7) on the explicit multiset, and against an exact integer (Python int) convolution.
 Series, regions and dates are invented.
@@ -53,15 +53,15 @@ def values_at(fc: pd.DataFrame, week: pd.Timestamp, **where) -> np.ndarray:
     return fc.loc[mask].sort_values("level")["value"].to_numpy()
 
 
-# ----------------------------------------------------------------- reference values (METHODS)
+# --------------------------------------------------------- reference values (docs/methods.md)
 
-# METHODS.md §7, check table row B1 (Cramer et al. 2022, PNAS, Methods: baseline model, plus
+# docs/methods.md §7, check table row B1 (Cramer et al. 2022, PNAS, Methods: baseline model, plus
 # the [d] choices): y = (50, 54, 61, 58, 66, 73, 70, 80), np.quantile type 7 of the
 # symmetrised differences (h=1) and of the full multiset of their pairwise sums (h=2).
 B1_Y = [50, 54, 61, 58, 66, 73, 70, 80]
 B1_H1 = [71.3, 73.75, 80, 86.25, 88.7]
 B1_H2 = [65, 73.75, 80, 86.25, 95]
-# METHODS.md §7, check table row B2 (same source): y = (3, 1, 0, 2, 1), h=1, floored at 0;
+# docs/methods.md §7, check table row B2 (same source): y = (3, 1, 0, 2, 1), h=1, floored at 0;
 # the untruncated values are printed beside it in §7.
 B2_Y = [3, 1, 0, 2, 1]
 B2_FLOORED = [0, 0, 1, 2.25, 3]
@@ -75,7 +75,7 @@ def test_methods_b1_horizons_one_and_two():
 
 
 def test_methods_b1_core_equals_numpy_on_the_multiset():
-    # METHODS §7 snippet: np.quantile(D) and np.quantile(D[:,None] + D[None,:]).
+    # docs/methods.md §7, check B1: np.quantile(D) and np.quantile(D[:,None] + D[None,:]).
     d = np.diff(np.array(B1_Y, dtype=float))
     got = sum_quantiles(d, steps=[1, 2], levels=TAU5)
     np.testing.assert_array_equal(got[0], np.quantile(explicit_sums(d, 1), TAU5))
@@ -255,7 +255,7 @@ def test_floor_at_zero_and_which_quantities_are_floored():
         assert (part.loc[part["quantity"] == "deaths", "value"] >= 0).all()
         growth = part.loc[part["quantity"] == "growth", "value"].to_numpy()
         np.testing.assert_array_equal(growth, raw.loc[raw["quantity"] == "growth", "value"])
-    # Flooring is max(0, .) of the unfloored quantile (METHODS §7).
+    # Flooring is max(0, .) of the unfloored quantile (docs/methods.md §7).
     np.testing.assert_array_equal(every["value"], np.maximum(raw["value"], 0))
 
 
@@ -300,7 +300,7 @@ def test_stale_series_gets_the_same_target_weeks_and_a_wider_spread():
 def test_issue_day_on_the_week_ending_weekday():
     # Issued on a Saturday, last week ending the Saturday before: the week ending on D is
     # horizon 0 (not produced), and horizon 1 lies two steps after the last observation, so it
-    # takes METHODS B1's two-fold values.
+    # takes check B1's two-fold values (docs/methods.md §7).
     obs = series_frame(B1_Y, last=SAT - WEEK)
     fc = persistence_forecast(obs, issued=SAT, horizons=(1, 2), levels=CM_LEVELS)
     assert sorted(fc["week_ending"].unique()) == [SAT + WEEK, SAT + 2 * WEEK]

@@ -13,7 +13,7 @@ Outside references:
 - cividis (Nuñez, Anderton & Renslow 2018, PLOS ONE 13:e0199239) as matplotlib ships it;
 - the PNG file layout (IHDR width/height at bytes 16-24, tEXt chunks) from the PNG
   specification (W3C PNG 2nd edition, sections 5.3 and 11.2.2), read with ``struct``;
-- pixels = inches x dpi (CONVENTIONS section 3; common practice, no source).
+- pixels = inches x dpi (docs/conventions.md §3; common practice, no source).
 Every chart also lands in ``test-artifacts/charts/`` (git-ignored) for a person to look at.
 """
 

@@ -1,6 +1,6 @@
 """Checks of Cooke's Classical Model core against published formulas and scipy.
 
-Check values C1-C6, I2, I3 and D1 are from /work/shared/METHODS.md (computed there with
+Check values C1-C6, I2, I3 and D1 are from docs/methods.md §1-§3 (hand-computed with
 scipy 1.17); each is also recomputed here with scipy.special.rel_entr / scipy.stats.chi2.
 """
 
@@ -45,7 +45,7 @@ def scipy_calibration(counts, p, power=1.0):
 
 def test_bin_index_ties_go_to_the_lower_bin():
     # Cooke (1991, ch. 12) bin definitions B_j = (q_{j-1}, q_j]: a value equal to a quantile
-    # belongs to the lower bin (METHODS section 1, "Ties").
+    # belongs to the lower bin (docs/methods.md §1, "Ties").
     q = np.array([[2.0, 4, 5, 7, 10]] * 7)
     y = np.array([1.0, 2, 4, 4.0001, 7, 10, 10.5])
     npt.assert_array_equal(bin_index(q, y), [0, 0, 1, 2, 3, 4, 5])
@@ -84,7 +84,7 @@ def test_bin_counts_rejects_out_of_range_bins():
 # ---------------------------------------------------------------------------------------
 # calibration
 
-# (name, counts, p, power, expected I, expected C) -- METHODS check table, Cooke (1991, ch. 12)
+# (name, counts, p, power, expected I, expected C) -- docs/methods.md §1, Cooke (1991, ch. 12)
 CALIBRATION_CASES = [
     ("C1 three quantiles", [1, 2, 5, 2], P3, 1.0, 0.2370678, 0.191746),
     ("C2 perfect", [1, 4, 5, 5, 4, 1], P5, 1.0, 0.0, 1.0),
@@ -112,7 +112,7 @@ def test_calibration_check_values(counts, p, power, info, cal):
 
 
 def test_c1_statistic():
-    # METHODS C1: 2 N I = 4.741356 with N = 10 (Cooke 1991, ch. 12).
+    # Check C1, docs/methods.md §1: 2 N I = 4.741356 with N = 10 (Cooke 1991, ch. 12).
     assert 2 * 10 * float(relative_entropy(np.array([1, 2, 5, 2]), P3)) == pytest.approx(
         4.741356, rel=1e-6
     )
@@ -154,7 +154,7 @@ def test_calibration_power_outside_unit_interval_is_refused(power):
 
 def test_calibration_power_matches_fewer_items():
     # Cooke (1991, ch. 12) calibration power: c N replaces N, so 10x the counts at c = 0.1
-    # equals the original counts (METHODS C5/C6).
+    # equals the original counts (checks C5/C6, docs/methods.md §1).
     base = np.array([4, 2, 4, 4, 2, 4])
     npt.assert_allclose(
         calibration_score(10 * base, P5, power=0.1), calibration_score(base, P5), rtol=1e-12
@@ -186,21 +186,21 @@ def _two_expert_item(transform=lambda v: v):
 
 
 def test_i2_two_experts_uniform_background():
-    # METHODS I2 (Cooke & Slijkhuis 2003, section 15.3.2): range [51, 159],
+    # Check I2, docs/methods.md §2 (Cooke & Slijkhuis 2003, section 15.3.2): range [51, 159],
     # I_A = 0.670480, I_B = 0.075953.
     q, lo, hi = _two_expert_item()
     npt.assert_allclose(lo, 51.0)
     npt.assert_allclose(hi, 159.0)
     npt.assert_allclose(information_score(q, lo, hi, P5), [0.670480, 0.075953], atol=5e-7)
-    # Hand check (METHODS section 2): A's bin widths 29, 15, 5, 8, 17, 34 on a range of 108.
+    # Hand check (docs/methods.md §2): A's bin widths 29, 15, 5, 8, 17, 34 on a range of 108.
     widths = np.array([29, 15, 5, 8, 17, 34.0])
     hand = np.sum(P5 * np.log(108 * P5 / widths))
     npt.assert_allclose(information_score(q, lo, hi, P5)[0], hand, rtol=1e-12)
 
 
 def test_i3_two_experts_log_uniform_background():
-    # METHODS I3 (Cooke 1991, ch. 12): log-uniform background = take logs of everything
-    # first; range exp -> [54.7466, 164.3937], I_A = 0.692084, I_B = 0.088063.
+    # Check I3, docs/methods.md §2 (Cooke 1991, ch. 12): log-uniform background = take logs
+    # of everything first; range exp -> [54.7466, 164.3937], I_A = 0.692084, I_B = 0.088063.
     q, lo, hi = _two_expert_item(np.log)
     npt.assert_allclose(np.exp([lo[0], hi[0]]), [54.7466, 164.3937], atol=5e-5)
     npt.assert_allclose(information_score(q, lo, hi, P5), [0.692084, 0.088063], atol=5e-7)
@@ -262,7 +262,7 @@ def test_information_is_never_negative(values, observed, overshoot):
 
 
 # ---------------------------------------------------------------------------------------
-# the three-model regression example of METHODS section 3 (our own construction)
+# the three-model regression example of docs/methods.md §3 (our own construction)
 
 TAU = np.array(CM_LEVELS)
 X = np.array([12, 30, 45, 80, 150, 220, 400, 650, 900, 1500.0])
@@ -292,8 +292,8 @@ def _d1_scores():
 
 
 def test_d1_calibration_and_information():
-    # METHODS D1 (Cooke & Goossens 2008): C = (0.7204, 0.0310, 0.6283),
-    # I = (0.8150, 1.0683, 0.2109); model 1 bin counts [1, 1, 4, 2, 2, 0] (METHODS V1).
+    # Check D1, docs/methods.md §3 (Cooke & Goossens 2008): C = (0.7204, 0.0310, 0.6283),
+    # I = (0.8150, 1.0683, 0.2109); model 1 bin counts [1, 1, 4, 2, 2, 0] (check V1, §9).
     counts, cal, info = _d1_scores()
     npt.assert_array_equal(counts[0], [1, 1, 4, 2, 2, 0])
     npt.assert_allclose(cal, [0.7204, 0.0310, 0.6283], atol=5e-5)
@@ -303,7 +303,8 @@ def test_d1_calibration_and_information():
 @pytest.mark.parametrize(
     ("alpha", "expected", "passed"),
     [
-        # METHODS D1 weights (Cooke & Goossens 2008; brute force over {0} and the C(e)).
+        # Check D1 weights, docs/methods.md §3 (Cooke & Goossens 2008; brute force over {0}
+        # and the C(e)).
         (0.0, [0.780, 0.044, 0.176], [True, True, True]),
         ("C3", [0.8159, 0.0, 0.1841], [True, False, True]),
         ("C1", [1.0, 0.0, 0.0], [True, False, False]),

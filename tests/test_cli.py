@@ -26,7 +26,7 @@ import pandas as pd
 import pytest
 from scipy.stats import norm
 
-from forebrief.cli import build_parser, main
+from forebrief.cli import build_parser
 from forebrief.schema import CM_LEVELS
 from forebrief.scoring.engine import BY_ITEM_COLUMNS, BY_MODEL_COLUMNS
 from forebrief.validate import EXCLUDED_COLUMNS
@@ -39,21 +39,6 @@ ISSUES = pd.date_range("2026-09-07", periods=8, freq="7D")  # Mondays
 AS_OF = "2026-11-09"
 
 Run = Callable[[Sequence[str]], tuple[int, str, str]]
-
-
-@pytest.fixture
-def run(capsys: pytest.CaptureFixture[str]) -> Run:
-    """Call ``main(argv)``; return (exit code, stdout, stderr). Usage errors exit via argparse."""
-
-    def call(argv: Sequence[str]) -> tuple[int, str, str]:
-        try:
-            code = main([str(a) for a in argv])
-        except SystemExit as exc:
-            code = int(exc.code) if exc.code is not None else 0
-        out, err = capsys.readouterr()
-        return code, out, err
-
-    return call
 
 
 def script(*argv: object) -> subprocess.CompletedProcess[str]:

@@ -174,7 +174,10 @@ def test_the_effective_configuration_holds_no_password_setting(tmp_path: Path) -
 def test_an_empty_file_gives_the_documented_defaults(tmp_path: Path) -> None:
     cfg = load_config(_write(tmp_path, ""))
     defaults = BriefingConfig()
-    assert cfg.archive == Path("archive") == defaults.archive  # relative: cwd of the run
+    # the default archive sits beside the configuration file (README, [archive] folder);
+    # without a file it is ./archive
+    assert cfg.archive == _write(tmp_path, "").parent.resolve() / "archive"
+    assert defaults.archive == Path("archive")
     for name in (
         "title",
         "audience",

@@ -2,8 +2,10 @@
 
 The scenario is invented data for the demo only, so these tests check it against the
 project's own file formats (FORECAST_COLUMNS, the observation columns, horizon =
-ceil(days / 7)) and against what the scenario promises: that the reporting and the teams
-behave as described. No scoring results are hard-coded.
+ceil(days / 7)) and against what the scenario promises: that the reporting, the wave and the
+teams behave as described. Each team's designed behaviour is checked against the complete
+counts (the truth) over the rated weeks, the calibrated team with a binomial band from
+scipy.stats (reference library). No scoring results are hard-coded.
 """
 
 from __future__ import annotations
@@ -19,6 +21,7 @@ from pathlib import Path
 import numpy as np
 import pandas as pd
 import pytest
+from scipy.stats import binom
 
 import forebrief.demo
 from forebrief.demo import (
@@ -29,7 +32,8 @@ from forebrief.demo import (
     write_scenario,
 )
 from forebrief.demo.__main__ import main as demo_main
-from forebrief.demo.scenario import LEVELS, TEAMS
+from forebrief.demo.scenario import LEVELS, RATING_WEEKS, REGIONS, TEAMS
+from forebrief.facts import VERDICTS
 from forebrief.schema import CM_LEVELS, FORECAST_COLUMNS
 
 EXAMPLE_INPUTS = Path(__file__).resolve().parents[1] / "example_inputs"
@@ -353,15 +357,114 @@ def test_malformed_file_has_each_fault_and_nothing_else_wrong(
     assert len(others) == scenario.submissions["issued"].nunique() - 1
 
 
-# --- the teams' behaviours show in simple statistics ---------------------------------------------
+# --- the wave's shape ----------------------------------------------------------------------------
+
+
+def _series(frame: pd.DataFrame, region: str, quantity: str) -> pd.Series:
+    rows = frame[(frame["region"] == region) & (frame["quantity"] == quantity)]
+    return rows.set_index("week_ending")["value"].sort_index()
+
+
+def test_the_wave_rises_and_falls_inside_the_rated_weeks(
+    scenario: forebrief.demo.Scenario,
+) -> None:
+    total = scenario.meta["total_region"]
+    first_rated = LAST_WEEK - pd.Timedelta(weeks=RATING_WEEKS - 1)
+    assert pd.Timestamp(scenario.meta["season"]["rated_weeks"]["first_week_ending"]) == first_rated
+    for region in [r["id"] for r in scenario.meta["regions"]]:
+        for quantity in ("admissions", "deaths"):
+            truth = _series(scenario.truth, region, quantity)
+            peak = truth.idxmax()
+            # rises into the peak and falls after it, all inside the rated weeks
+            assert first_rated < peak <= LAST_WEEK - pd.Timedelta(weeks=4), (region, quantity)
+            assert truth[first_rated] < 0.8 * truth[peak], (region, quantity)
+            assert truth[LAST_WEEK] < 0.8 * truth[peak], (region, quantity)
+            meta_peak = scenario.meta["wave"]["peak_week_ending"][quantity][region]
+            assert pd.Timestamp(meta_peak) == peak
+    # the whole jurisdiction's admissions peak 5-8 weeks before the last week and are falling
+    # by about 10-20 % a week at the last issue date, next week included
+    adm = _series(scenario.truth, total, "admissions")
+    ahead = _series(scenario.truth_ahead, total, "admissions")
+    weeks_before = (LAST_WEEK - adm.idxmax()).days // 7
+    assert 5 <= weeks_before <= 8
+    weekly = (adm[LAST_WEEK] / adm[LAST_WEEK - pd.Timedelta(weeks=3)]) ** (1 / 3) - 1
+    assert -0.22 < weekly < -0.08
+    assert adm[LAST_WEEK] < adm[LAST_WEEK - pd.Timedelta(weeks=1)]
+    next_week = LAST_WEEK + pd.Timedelta(weeks=1)
+    assert ahead[next_week] < adm[LAST_WEEK]
+    assert (
+        _series(scenario.truth_ahead, total, "deaths")[next_week]
+        < _series(scenario.truth, total, "deaths")[LAST_WEEK]
+    )
+    # and in most regions
+    falling = [
+        _series(scenario.truth_ahead, r.id, "admissions")[next_week]
+        < _series(scenario.truth, r.id, "admissions")[LAST_WEEK]
+        for r in REGIONS
+    ]
+    assert sum(falling) >= len(REGIONS) - 2
+
+
+def test_weeks_ahead_are_the_last_issue_targets_and_add_up(
+    scenario: forebrief.demo.Scenario,
+) -> None:
+    ahead = scenario.truth_ahead
+    final = scenario.submissions[scenario.submissions["issued"] == LAST_ISSUED]
+    assert set(ahead["week_ending"]) == set(final["week_ending"])
+    total = scenario.meta["total_region"]
+    summed = ahead[ahead["region"] != total].groupby(["quantity", "week_ending"])["value"].sum()
+    own = ahead[ahead["region"] == total].set_index(["quantity", "week_ending"])["value"]
+    pd.testing.assert_series_equal(own.sort_index(), summed.sort_index(), check_names=False)
+
+
+# --- the teams' designed behaviours are real properties against the complete counts -------------
+
+
+@pytest.fixture(scope="module")
+def rated(scenario: forebrief.demo.Scenario, scored: pd.DataFrame) -> pd.DataFrame:
+    """Forecasts of the rated weeks' targets (the last 12), regions only, all horizons."""
+    first_rated = LAST_WEEK - pd.Timedelta(weeks=RATING_WEEKS - 1)
+    keep = (scored["week_ending"] >= first_rated) & (
+        scored["region"] != scenario.meta["total_region"]
+    )
+    return scored[keep]
 
 
 def _coverage(frame: pd.DataFrame, lo: float, hi: float) -> float:
     return float(((frame["truth"] >= frame[lo]) & (frame["truth"] <= frame[hi])).mean())
 
 
-def test_interval_widths_and_coverage_follow_the_teams_spread(scored: pd.DataFrame) -> None:
-    by = dict(tuple(scored.groupby("model")))
+def _below_median(frame: pd.DataFrame) -> float:
+    return float((frame["truth"] < frame[0.5]).mean())
+
+
+def test_meta_names_each_teams_designed_verdict(scenario: forebrief.demo.Scenario) -> None:
+    verdicts = {t["id"]: t["expected_verdict"] for t in scenario.meta["teams"]}
+    assert set(verdicts.values()) <= {*VERDICTS, "lags"}
+    assert verdicts[_team("well calibrated")] == "reliable"
+    assert verdicts[_team("overconfident")] == "overconfident"
+    assert verdicts[_team("underconfident")] == "underconfident"
+    assert verdicts[_team("biased high")] == "biased high"
+    assert verdicts[_team("lags")] == "lags"
+    assert verdicts[_team("new entrant")] == "not yet rated"
+
+
+def test_the_calibrated_team_covers_the_nominal_share(rated: pd.DataFrame) -> None:
+    honest = rated[rated["model"] == _team("well calibrated")]
+    # Count each outcome (target week x region x quantity) once: the four horizons' forecasts of
+    # one outcome share it, so they are not independent evidence.
+    n = len(honest.drop_duplicates(["week_ending", "region", "quantity"]))
+    assert n == RATING_WEEKS * len(REGIONS) * 2
+    for (lo, hi), nominal in (((0.25, 0.75), 0.5), ((0.05, 0.95), 0.9)):
+        # 95 % binomial band for n outcomes (scipy.stats.binom, reference library)
+        low, high = binom.interval(0.95, n, nominal)
+        assert low / n <= _coverage(honest, lo, hi) <= high / n, (lo, hi)
+    low, high = binom.interval(0.95, n, 0.5)
+    assert low / n <= _below_median(honest) <= high / n
+
+
+def test_spread_teams_are_over_and_underconfident(rated: pd.DataFrame) -> None:
+    by = dict(tuple(rated.groupby("model")))
     narrow, honest, wide = (
         by[_team("overconfident")],
         by[_team("well calibrated")],
@@ -372,30 +475,37 @@ def test_interval_widths_and_coverage_follow_the_teams_spread(scored: pd.DataFra
         return float(((f[0.95] - f[0.05]) / (f[0.5] + 1.0)).median())
 
     assert rel_width(narrow) < rel_width(honest) < rel_width(wide)
-    assert _coverage(narrow, 0.05, 0.95) < 0.6
-    assert 0.8 <= _coverage(honest, 0.05, 0.95) <= 0.96
-    assert 0.3 <= _coverage(honest, 0.25, 0.75) <= 0.65
-    assert _coverage(wide, 0.05, 0.95) > 0.95
+    assert _coverage(narrow, 0.05, 0.95) < 0.7
+    assert _coverage(wide, 0.25, 0.75) > 0.75
 
 
-def test_biased_and_lagging_teams_show_their_bias(
-    scenario: forebrief.demo.Scenario, scored: pd.DataFrame
+def test_biased_team_sits_high(rated: pd.DataFrame) -> None:
+    by = dict(tuple(rated.groupby("model")))
+    assert _below_median(by[_team("biased high")]) > 0.75
+    assert _below_median(by[_team("biased high")]) > _below_median(by[_team("well calibrated")])
+
+
+def test_lagging_team_is_low_on_the_rise_and_high_on_the_fall(
+    scenario: forebrief.demo.Scenario, rated: pd.DataFrame
 ) -> None:
-    above = scored.assign(above=scored[0.5] > scored["truth"]).groupby("model")["above"].mean()
-    high = _team("biased high")
-    assert above[high] > 0.7
-    assert above[high] > above[_team("well calibrated")] + 0.1
-    # while the whole jurisdiction's admissions still rise, the lagging team sits low
-    total = scenario.meta["total_region"]
-    t_adm = scenario.truth[
-        (scenario.truth["region"] == total) & (scenario.truth["quantity"] == "admissions")
-    ]
-    peak = t_adm.loc[t_adm["value"].idxmax(), "week_ending"]
-    rising = scored[scored["week_ending"] < peak - pd.Timedelta(weeks=2)]
-    log_err = np.log1p(rising[0.5]) - np.log1p(rising["truth"])
-    mean_err = log_err.groupby(rising["model"]).mean()
-    assert mean_err[_team("lags")] < -0.2
-    assert mean_err[_team("lags")] < mean_err[_team("well calibrated")] - 0.2
+    # the wave's direction at each target: weeks at least 2 before / after the series' peak
+    truth = scenario.truth
+    peaks = truth.loc[truth.groupby(["region", "quantity"])["value"].idxmax()]
+    peak = peaks.set_index(["region", "quantity"])["week_ending"].rename("peak")
+    frame = rated.join(peak, on=["region", "quantity"])
+    weeks_from_peak = (frame["week_ending"] - frame["peak"]).dt.days // 7
+    direction = np.where(weeks_from_peak <= -2, "rising", "")
+    direction = np.where(weeks_from_peak >= 2, "falling", direction)
+    log_err = np.log1p(frame[0.5]) - np.log1p(frame["truth"])
+    mean_err = log_err.groupby([frame["model"], direction]).mean()
+    late, honest = _team("lags"), _team("well calibrated")
+    assert mean_err[(late, "rising")] < mean_err[(honest, "rising")] - 0.1
+    assert mean_err[(late, "falling")] > mean_err[(honest, "falling")] + 0.1
+    # and its median error moves against the wave's direction, target by target
+    lagging = frame["model"] == late
+    signed = np.where(direction == "rising", 1.0, np.where(direction == "falling", -1.0, np.nan))
+    keep = lagging & ~np.isnan(signed)
+    assert np.corrcoef(log_err[keep], signed[keep])[0, 1] < -0.5
 
 
 def test_targets_are_the_four_saturdays_after_each_monday(

@@ -1,8 +1,9 @@
 """Tests of forebrief.distributions: piecewise-linear members, exact linear pool, Vincentization.
 
-Outside checks: the worked values of METHODS §2 and §4 (Cooke 1991 ch. 12; Cooke & Slijkhuis
-2003 §15.3.2; Lichtendahl, Grushka-Cockayne & Winkler 2013, Management Science 59(7)), normal
-mixtures solved with scipy.optimize.brentq, and a slow scalar reference written below.
+Outside checks: the worked values of docs/methods.md §2 and §4 (Cooke 1991 ch. 12; Cooke &
+Slijkhuis 2003 §15.3.2; Lichtendahl, Grushka-Cockayne & Winkler 2013, Management Science
+59(7)), normal mixtures solved with scipy.optimize.brentq, and a slow scalar reference
+written below.
 """
 
 from __future__ import annotations
@@ -28,7 +29,7 @@ from forebrief.errors import ConfigError
 from forebrief.schema import CM_LEVELS
 
 TAU = np.array(CM_LEVELS)
-# The two experts of METHODS §2 (check I2) and the realization x = 112.
+# The two experts of docs/methods.md §2 (check I2) and the realization x = 112.
 EXPERT_A = np.array([80.0, 95.0, 100.0, 108.0, 125.0])
 EXPERT_B = np.array([60.0, 85.0, 100.0, 120.0, 150.0])
 PAIR = np.stack([EXPERT_A, EXPERT_B])[None]  # (1 item, 2 members, 5 levels)
@@ -107,9 +108,9 @@ def random_panel(rng, n, m, levels, *, absent=0.2, gaps=0.15):
     return q
 
 
-# --------------------------------------------------------------------------- METHODS §2 and §4
+# ------------------------------------------------------------------- docs/methods.md §2 and §4
 def test_support_bounds_two_experts():
-    # METHODS check I2 (Cooke & Slijkhuis 2003, §15.3.2, k = 10 %): range [51, 159].
+    # Check I2, docs/methods.md §2 (Cooke & Slijkhuis 2003, §15.3.2, k = 10 %): range [51, 159].
     lo, hi = support_bounds(PAIR, extra=np.array([112.0]))
     np.testing.assert_allclose([lo[0], hi[0]], [51.0, 159.0], rtol=0, atol=1e-12)
     lo, hi = support_bounds(PAIR)  # the realization lies inside the quantiles
@@ -117,7 +118,8 @@ def test_support_bounds_two_experts():
 
 
 def test_support_bounds_log_scale():
-    # METHODS check I3 (log-uniform background, Cooke 1991 ch. 12): exp -> [54.7466, 164.3937].
+    # Check I3, docs/methods.md §2 (log-uniform background, Cooke 1991 ch. 12):
+    # exp -> [54.7466, 164.3937].
     lo, hi = support_bounds(np.log(PAIR), extra=np.log([112.0]))
     np.testing.assert_allclose(np.exp([lo[0], hi[0]]), [54.7466, 164.3937], atol=1e-4)
 
@@ -142,7 +144,7 @@ def test_support_bounds_rejects_bad_overshoot():
 @pytest.mark.parametrize(
     ("weights", "expected"),
     [
-        # METHODS check P3 (Cooke 1991 ch. 12; values from np.interp on the knots, METHODS §4).
+        # Check P3, docs/methods.md §4 (Cooke 1991 ch. 12; values from np.interp on the knots).
         ((0.5, 0.5), (63.5461, 89.4444, 100.0, 114.1818, 145.4819)),
         ((0.7, 0.3), (66.6922, 91.5116, 100.0, 111.7546, 141.5049)),
     ],
@@ -154,7 +156,7 @@ def test_pool_of_two_experts(weights, expected):
 
 
 def test_pool_of_two_experts_hand_check_of_the_5_percent_point():
-    # METHODS §4 hand check: the 5 % point lies in [60, 80], where
+    # docs/methods.md §4 hand check: the 5 % point lies in [60, 80], where
     # 0.5*0.05(x - 51)/29 + 0.5*[0.05 + 0.2(x - 60)/25] = 0.05, a linear equation in x.
     slope = 0.5 * 0.05 / 29 + 0.5 * 0.2 / 25
     const = 0.5 * 0.05 * (-51) / 29 + 0.5 * (0.05 - 0.2 * 60 / 25)
@@ -169,7 +171,7 @@ def test_pool_of_two_experts_hand_check_of_the_5_percent_point():
 @pytest.mark.parametrize(
     ("weights", "expected"),
     [
-        # METHODS check P3, Vincent column (Lichtendahl et al. 2013: Q_V = sum w_e Q_e).
+        # Check P3, docs/methods.md §4, Vincent column (Lichtendahl et al. 2013: Q_V = sum w_e Q_e).
         ((0.5, 0.5), (70.0, 90.0, 100.0, 114.0, 137.5)),
         ((0.7, 0.3), (74.0, 92.0, 100.0, 111.6, 132.5)),
     ],
@@ -179,8 +181,8 @@ def test_quantile_average_of_two_experts(weights, expected):
 
 
 def test_point_mass_hand_worked():
-    # Hand-worked from the definition (METHODS §4), this file: A = (0, 0, 0, 2, 5) has a mass of
-    # 0.45 at 0; B = (1, 2, 3, 4, 6); L* = -0.6, H* = 6.6. Just below 0 the pool is
+    # Hand-worked from the definition (docs/methods.md §4), this file: A = (0, 0, 0, 2, 5) has a
+    # mass of 0.45 at 0; B = (1, 2, 3, 4, 6); L* = -0.6, H* = 6.6. Just below 0 the pool is
     # 0.5*0.05 + 0.5*0.05*0.6/1.6 = 0.034375, at 0 it is 0.259375, and on (0, 1) it is
     # 0.259375 + 0.078125 x. So q(0.1) = q(0.25) = 0 (inside the jump), q(0.3) = 0.52.
     q = np.array([[[0, 0, 0, 2, 5], [1, 2, 3, 4, 6]]], dtype=float)
@@ -195,7 +197,7 @@ def test_point_mass_hand_worked():
 
 # --------------------------------------------------------------------------- normal mixtures
 def mixture_quantile(tau, comps, weights):
-    """METHODS §4: quantile of a normal mixture solved with scipy.optimize.brentq."""
+    """docs/methods.md §4: quantile of a normal mixture solved with scipy.optimize.brentq."""
 
     def excess(v):
         return (
@@ -212,9 +214,10 @@ def dense_normals(comps):
 @pytest.mark.parametrize(
     ("comps", "lop_expected", "vincent_expected"),
     [
-        # METHODS check P1 (Lichtendahl et al. 2013): N(0,1) & N(2,1), equal weights.
+        # Check P1, docs/methods.md §4 (Lichtendahl et al. 2013): N(0,1) & N(2,1), equal weights.
         (((0.0, 1.0), (2.0, 1.0)), (-1.2845, 3.2845), (-0.6449, 2.6449)),
-        # METHODS check P2: N(0,1) & N(0,2^2); 90 % widths 5.2296 (pool) and 4.9346 (Vincent).
+        # Check P2, docs/methods.md §4: N(0,1) & N(0,2^2); 90 % widths 5.2296 (pool) and 4.9346
+        # (Vincent).
         (((0.0, 1.0), (0.0, 2.0)), (-2.6148, 2.6148), (-2.4673, 2.4673)),
     ],
 )
@@ -226,7 +229,7 @@ def test_dense_normal_members_converge_to_the_mixture(comps, lop_expected, vince
     exact = [mixture_quantile(t, comps, [0.5, 0.5]) for t in out_levels]
     # Piecewise-linear in the far tail of one member: about 1e-5 here (1e-4 with 999 levels).
     np.testing.assert_allclose(lop, exact, atol=5e-5)
-    np.testing.assert_allclose(lop[[0, -1]], lop_expected, atol=1e-4)  # METHODS: 4 decimals
+    np.testing.assert_allclose(lop[[0, -1]], lop_expected, atol=1e-4)  # check P1/P2: 4 decimals
     ends = np.array([0.05, 0.95])
     members_at_ends = np.stack([mu + sd * norm.ppf(ends) for mu, sd in comps])[None]
     vincent = quantile_average(members_at_ends, [1, 1])[0]
@@ -236,20 +239,21 @@ def test_dense_normal_members_converge_to_the_mixture(comps, lop_expected, vince
 
 
 def test_p2_interval_widths():
-    # METHODS check P2: 90 % width 5.2296 for the pool, 4.9346 = 2 * 1.5 * 1.6449 for Vincent.
+    # Check P2, docs/methods.md §4: 90 % width 5.2296 for the pool, 4.9346 = 2 * 1.5 * 1.6449
+    # for Vincent.
     comps = ((0.0, 1.0), (0.0, 2.0))
     q = dense_normals(comps)
     lop = linear_pool_quantiles(q, DENSE, [1, 1], [0.05, 0.95], lower=[-20.0], upper=[20.0])[0]
     exact = mixture_quantile(0.95, comps, [0.5, 0.5]) - mixture_quantile(0.05, comps, [0.5, 0.5])
     assert lop[1] - lop[0] == pytest.approx(exact, abs=5e-5)
-    assert lop[1] - lop[0] == pytest.approx(5.2296, abs=1e-4)  # METHODS: 4 decimals
+    assert lop[1] - lop[0] == pytest.approx(5.2296, abs=1e-4)  # check P2: 4 decimals
     ends = np.array([0.05, 0.95])
     vincent = quantile_average(np.stack([norm.ppf(ends), 2 * norm.ppf(ends)])[None], [1, 1])[0]
     assert vincent[1] - vincent[0] == pytest.approx(4.9346, abs=1e-4)
 
 
 def test_random_normal_members_pool_variance_exceeds_vincent_variance():
-    # Lichtendahl et al. (2013); METHODS §4: Var_LOP = sum w s^2 + sum w (mu - mubar)^2
+    # Lichtendahl et al. (2013); docs/methods.md §4: Var_LOP = sum w s^2 + sum w (mu - mubar)^2
     # >= (sum w s)^2 = Var_V, and both have the mean sum w mu. Seeded random normals.
     rng = np.random.default_rng(4021)
     for _ in range(5):

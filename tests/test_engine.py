@@ -1,6 +1,6 @@
 """The scoring front end to end on hand-built tables, against published worked examples.
 
-Check values come from /work/shared/METHODS.md, which computed them with scipy 1.17 from the
+Check values come from docs/methods.md, where they are hand-computed with scipy 1.17 from the
 formulas of Cooke (1991, ch. 12), Cooke & Slijkhuis (2003, section 15.3.2), Bracher et al.
 (2021) and Cramer et al. (2022); each test names its source.
 """
@@ -53,14 +53,14 @@ def _obs(values: dict[tuple[str, pd.Timestamp], float], quantity: str = "admissi
     ).astype({"reported": "datetime64[ns]"})
 
 
-# --- Cooke & Slijkhuis (2003) section 15.3.2: two experts, one item (METHODS check I2, I3) ---
+# --- Cooke & Slijkhuis (2003) section 15.3.2: two experts, one item (docs/methods.md §2, I2, I3)
 
 A = np.array([80, 95, 100, 108, 125.0])
 B = np.array([60, 85, 100, 120, 150.0])
 
 
 def test_two_expert_information_uniform_background() -> None:
-    # METHODS I2: intrinsic range [51, 159]; I_A = 0.670480, I_B = 0.075953
+    # Check I2, docs/methods.md §2: intrinsic range [51, 159]; I_A = 0.670480, I_B = 0.075953
     fc = pd.concat([_forecast_rows("A", A), _forecast_rows("B", B)], ignore_index=True)
     res = score_forecasts(fc, _obs({("r1", WEEK): 112.0}), as_of=pd.Timestamp("2026-10-12"))
     info = res.by_item.set_index("model")["information"]
@@ -69,8 +69,9 @@ def test_two_expert_information_uniform_background() -> None:
 
 
 def test_two_expert_information_log_background() -> None:
-    # METHODS I3 applies logs; forebrief's log background is ln(x + 1), so recompute I3's
-    # construction on ln(x + 1) with plain numpy (Cooke 1991 ch. 12, log-uniform background).
+    # Check I3 (docs/methods.md §2) applies logs; forebrief's log background is ln(x + 1), so
+    # recompute I3's construction on ln(x + 1) with plain numpy (Cooke 1991 ch. 12,
+    # log-uniform background).
     fc = pd.concat([_forecast_rows("A", A), _forecast_rows("B", B)], ignore_index=True)
     res = score_forecasts(fc, _obs({("r1", WEEK): 112.0}), as_of=pd.Timestamp("2026-10-12"),
                           settings=ScoreSettings(background="log"))
@@ -89,7 +90,7 @@ def test_two_expert_information_log_background() -> None:
     assert got["A"] == pytest.approx(0.692084, abs=0.01)
 
 
-# --- Cooke & Goossens (2008) style regression example, METHODS section 3 (check D1) -----------
+# --- Cooke & Goossens (2008) style regression example, docs/methods.md §3 (check D1) ---
 
 X3 = np.array([12, 30, 45, 80, 150, 220, 400, 650, 900, 1500.0])
 SIG = [0.3, 0.2, 0.6]
@@ -112,7 +113,7 @@ def _three_models() -> tuple[pd.DataFrame, pd.DataFrame]:
 
 
 def test_classical_model_regression_example() -> None:
-    # METHODS D1: C = (0.7204, 0.0310, 0.6283); I = (0.8150, 1.0683, 0.2109)
+    # Check D1, docs/methods.md §3: C = (0.7204, 0.0310, 0.6283); I = (0.8150, 1.0683, 0.2109)
     fc, obs = _three_models()
     res = score_forecasts(fc, obs, as_of=pd.Timestamp("2026-10-12"),
                           settings=ScoreSettings(alpha=0.0))
@@ -134,7 +135,7 @@ def test_classical_model_regression_example() -> None:
 
 @pytest.mark.parametrize(
     ("cut_at", "weights"),
-    [("m3", [0.8159, 0.0, 0.1841]), ("m1", [1.0, 0.0, 0.0])],  # METHODS D1
+    [("m3", [0.8159, 0.0, 0.1841]), ("m1", [1.0, 0.0, 0.0])],  # check D1, docs/methods.md §3
 )
 def test_cutoff_removes_models(cut_at: str, weights: list[float]) -> None:
     # alpha set exactly to a model's calibration keeps that model (the test is >=)
@@ -157,7 +158,7 @@ def test_no_model_passes_gives_equal_weights_and_says_so() -> None:
     assert any("equal weights" in n for n in res.notes)
 
 
-# --- Bracher et al. (2021), METHODS W1: q = (2, 4, 5, 7, 10), y = 12 ---------------------------
+# --- Bracher et al. (2021), docs/methods.md §5, check W1: q = (2, 4, 5, 7, 10), y = 12 ----------
 
 
 def test_wis_and_decomposition_through_the_engine() -> None:
@@ -175,7 +176,8 @@ def test_wis_and_decomposition_through_the_engine() -> None:
 
 
 def test_log_scale_wis() -> None:
-    # Bosse et al. (2023): WIS of ln(x + 1); METHODS L1 gives 0.4886 (0.0730 / 0 / 0.4157)
+    # Bosse et al. (2023): WIS of ln(x + 1); check L1 (docs/methods.md §8) gives 0.4886
+    # (0.0730 / 0 / 0.4157)
     fc = _forecast_rows("m", np.array([2, 4, 5, 7, 10.0]))
     res = score_forecasts(fc, _obs({("r1", WEEK): 12.0}), as_of=pd.Timestamp("2026-10-12"),
                           settings=ScoreSettings(scale="log"))

@@ -1,12 +1,13 @@
 """Ensembles of one issue date (forebrief.ensemble) on small hand-built tables.
 
-Outside checks, each named beside its test: the worked Classical Model example of METHODS §3
-(check D1; Cooke 1991, ch. 12; Cooke & Goossens 2008), recomputed here by a brute-force loop
-that scores with scipy directly; normal mixtures solved with ``scipy.optimize.brentq`` and the
-values of METHODS §4 (checks P1, P2; Lichtendahl, Grushka-Cockayne & Winkler 2013, Management
-Science 59(7)); and the definition of the linear pool as a convex combination of CDFs (Cooke
-1991, ch. 12). The array-level pool is tested in tests/test_distributions.py; these tests go
-through :func:`build_ensemble` and the ``forebrief ensemble`` command.
+Outside checks, each named beside its test: the worked Classical Model example of
+docs/methods.md §3 (check D1; Cooke 1991, ch. 12; Cooke & Goossens 2008), recomputed here by
+a brute-force loop that scores with scipy directly; normal mixtures solved with
+``scipy.optimize.brentq`` and the values of docs/methods.md §4 (checks P1, P2; Lichtendahl,
+Grushka-Cockayne & Winkler 2013, Management Science 59(7)); and the definition of the linear
+pool as a convex combination of CDFs (Cooke 1991, ch. 12). The array-level pool is tested in
+tests/test_distributions.py; these tests go through :func:`build_ensemble` and the
+``forebrief ensemble`` command.
 """
 
 from __future__ import annotations
@@ -22,7 +23,6 @@ from scipy.optimize import brentq
 from scipy.special import rel_entr
 from scipy.stats import chi2, norm
 
-from forebrief.cli import main
 from forebrief.distributions import (
     linear_pool_quantiles,
     member_cdf,
@@ -31,6 +31,7 @@ from forebrief.distributions import (
 )
 from forebrief.ensemble import (
     ENSEMBLE_COLUMNS,
+    METHODS,
     ROBUSTNESS_COLUMNS,
     WEIGHT_COLUMNS,
     EnsembleSettings,
@@ -42,7 +43,7 @@ from forebrief.schema import CM_LEVELS
 from forebrief.scoring.engine import score_forecasts
 
 TAU = np.array(CM_LEVELS)
-P5 = np.diff(np.r_[0.0, TAU, 1.0])  # (0.05, 0.20, 0.25, 0.25, 0.20, 0.05), METHODS §1
+P5 = np.diff(np.r_[0.0, TAU, 1.0])  # (0.05, 0.20, 0.25, 0.25, 0.20, 0.05), docs/methods.md §1
 PAST = pd.Timestamp("2026-10-05")  # a Monday: the past issue date
 PAST_WEEK = pd.Timestamp("2026-10-10")  # its target week (Saturday), horizon 1
 D = pd.Timestamp("2026-10-12")  # the issue date of the ensemble
@@ -112,7 +113,7 @@ def pooled(result, method: str, *, region: str = "r00") -> pd.Series:  # type: i
 
 
 # --------------------------------------------------------------------------------------------
-# METHODS §3: 3 models, 10 items, lognormal-shaped quantiles (our own construction there)
+# docs/methods.md §3: 3 models, 10 items, lognormal-shaped quantiles (our own construction there)
 
 S3_X = np.array([12, 30, 45, 80, 150, 220, 400, 650, 900, 1500], dtype=float)
 S3_SIG = [0.3, 0.2, 0.6]
@@ -125,7 +126,7 @@ S3_REGIONS = [f"r{i:02d}" for i in range(10)]
 
 
 def section3_history() -> np.ndarray:
-    """Q[e, i, :] = x_i exp(dl[e][i] + sig[e] Phi^-1(tau)) (METHODS §3)."""
+    """Q[e, i, :] = x_i exp(dl[e][i] + sig[e] Phi^-1(tau)) (docs/methods.md §3)."""
     return np.array(
         [
             [S3_X[i] * np.exp(S3_DL[e][i] + S3_SIG[e] * norm.ppf(TAU)) for i in range(10)]
@@ -135,8 +136,9 @@ def section3_history() -> np.ndarray:
 
 
 def section3_tables() -> tuple[pd.DataFrame, pd.DataFrame]:
-    """The §3 example as the history (issued PAST for PAST_WEEK, one item per region), plus
-    forecasts of the same three models issued on D for the week after (the targets)."""
+    """The docs/methods.md §3 example as the history (issued PAST for PAST_WEEK, one item per
+    region), plus forecasts of the same three models issued on D for the week after (the
+    targets)."""
     q = section3_history()
     parts = []
     for e in range(3):
@@ -153,7 +155,7 @@ def section3_tables() -> tuple[pd.DataFrame, pd.DataFrame]:
 
 def scipy_calibration(quantiles: np.ndarray, x: np.ndarray) -> float:
     """C = chi2.sf(2 N I(s, p), 5); a realisation equal to a quantile goes in the lower bin
-    (Cooke 1991, ch. 12; METHODS §1)."""
+    (Cooke 1991, ch. 12; docs/methods.md §1)."""
     bins = np.array(
         [np.searchsorted(q, xi, side="left") for q, xi in zip(quantiles, x, strict=True)]
     )
@@ -163,13 +165,13 @@ def scipy_calibration(quantiles: np.ndarray, x: np.ndarray) -> float:
 
 
 def scipy_information(quantiles: np.ndarray, lo: np.ndarray, hi: np.ndarray) -> float:
-    """Mean over items of sum_j p_j ln(p_j / r_j) on the intrinsic range (METHODS §2)."""
+    """Mean over items of sum_j p_j ln(p_j / r_j) on the intrinsic range (docs/methods.md §2)."""
     widths = np.diff(np.column_stack([lo, quantiles, hi]), axis=1) / (hi - lo)[:, None]
     return float(np.mean(np.sum(P5 * np.log(P5 / widths), axis=1)))
 
 
 def brute_force_alpha(q: np.ndarray, x: np.ndarray) -> list[tuple[float, float, float, float]]:
-    """(alpha, C(DM), I(DM), combined) for alpha in {0} and every C(e) (METHODS §3).
+    """(alpha, C(DM), I(DM), combined) for alpha in {0} and every C(e) (docs/methods.md §3).
 
     Global weights C I 1{C >= alpha}; the DM is the linear pool on each item's intrinsic
     range L* = L - 0.1 (U - L), U* = U + 0.1 (U - L) over all models and the realisation.
@@ -200,7 +202,7 @@ def best_of(scored: list[tuple[float, float, float, float]]) -> tuple[float, flo
 
 
 def test_section3_model_scores_and_weights() -> None:
-    # METHODS check D1 (Cooke & Goossens 2008): C = (0.7204, 0.0310, 0.6283),
+    # Check D1, docs/methods.md §3 (Cooke & Goossens 2008): C = (0.7204, 0.0310, 0.6283),
     # I = (0.8150, 1.0683, 0.2109); at alpha = 0, w = (0.780, 0.044, 0.176).
     fc, obs = section3_tables()
     res = build_ensemble(fc, obs, issued=D, settings=EnsembleSettings(alpha=0.0))
@@ -213,8 +215,8 @@ def test_section3_model_scores_and_weights() -> None:
 
 
 def test_optimised_alpha_matches_section3_and_a_brute_force_search() -> None:
-    # METHODS check D1: alpha* = C(model 1) = 0.7204 with combined 0.5871 (Cooke 1991 ch. 12;
-    # Cooke & Goossens 2008); the brute force below scores with scipy directly.
+    # Check D1, docs/methods.md §3: alpha* = C(model 1) = 0.7204 with combined 0.5871 (Cooke
+    # 1991 ch. 12; Cooke & Goossens 2008); the brute force below scores with scipy directly.
     fc, obs = section3_tables()
     res = build_ensemble(fc, obs, issued=D)
     (group,) = res.summary["groups"]
@@ -227,12 +229,12 @@ def test_optimised_alpha_matches_section3_and_a_brute_force_search() -> None:
     assert group["pool_combined"] == pytest.approx(combined, rel=1e-9)
     assert group["candidates"] == len(scored) == 4
     assert group["pool_items"] == 10
-    # with alpha* only model 1 keeps weight (METHODS §3: w = (1, 0, 0))
+    # with alpha* only model 1 keeps weight (docs/methods.md §3: w = (1, 0, 0))
     assert res.weights.set_index("model")["weight"].tolist() == [1.0, 0.0, 0.0]
 
 
 def test_section3_documented_values_at_fixed_alpha() -> None:
-    # METHODS §3: alpha = 0 -> DM C 0.6283, I 0.4827, combined 0.3033; alpha = C(model 3)
+    # docs/methods.md §3: alpha = 0 -> DM C 0.6283, I 0.4827, combined 0.3033; alpha = C(model 3)
     # = 0.6283 -> w = (0.8159, 0, 0.1841), combined 0.3580; equal-weight DM C 0.033, I 0.3544.
     fc, obs = section3_tables()
     c3 = scipy_calibration(section3_history()[2], S3_X)
@@ -243,7 +245,7 @@ def test_section3_documented_values_at_fixed_alpha() -> None:
     assert g0["pool_combined"] == pytest.approx(0.3033, abs=5e-5)
     assert g0["equal_pool_calibration"] == pytest.approx(0.033, abs=5e-4)
     assert g0["equal_pool_information"] == pytest.approx(0.3544, abs=5e-5)
-    # alpha = C(e) keeps model e, because the test is C >= alpha (METHODS §3)
+    # alpha = C(e) keeps model e, because the test is C >= alpha (docs/methods.md §3)
     c3_code = float(at0.weights.set_index("model").loc["m3", "calibration"])
     assert c3_code == pytest.approx(c3, rel=1e-12)
     at3 = build_ensemble(fc, obs, issued=D, settings=EnsembleSettings(alpha=c3_code))
@@ -257,9 +259,10 @@ def test_section3_documented_values_at_fixed_alpha() -> None:
 
 
 def test_alpha_ties_go_to_the_smaller_cutoff() -> None:
-    # Cooke 1991 ch. 12 / METHODS §3: candidates {0} and the C(e). Built tie: one biased-low
-    # and one biased-high member whose pool beats both; alpha = 0 and alpha = min C(e) then
-    # keep the same members and give the same pool, and the smaller alpha (0) must win.
+    # Cooke 1991 ch. 12 / docs/methods.md §3: candidates {0} and the C(e). Built tie: one
+    # biased-low and one biased-high member whose pool beats both; alpha = 0 and alpha =
+    # min C(e) then keep the same members and give the same pool, and the smaller alpha (0)
+    # must win.
     x = np.array([100.0, 120, 90, 150, 80, 110, 130, 95, 105, 140])
     z = norm.ppf(TAU)
     low = np.array([xi * np.exp(-0.25 + 0.08 * z) for xi in x])
@@ -288,10 +291,10 @@ def test_alpha_ties_go_to_the_smaller_cutoff() -> None:
 
 def test_a_pool_of_one_member_returns_that_member() -> None:
     # A linear pool of one distribution is that distribution (Cooke 1991, ch. 12), and the
-    # median of one number is the number: all three methods return the member's quantiles.
+    # median of one number is the number: every method returns the member's quantiles.
     q = [3.0, 7.5, 9.0, 14.0, 22.0]
     res = build_ensemble(table([rows("solo", q)]), NO_OBS, issued=D)
-    for method in ("weighted_pool", "equal_pool", "quantile_median"):
+    for method in ("weighted_pool", "equal_pool", "quantile_median", "recalibrated_pool"):
         got = pooled(res, method)
         np.testing.assert_allclose(got.index, TAU)
         np.testing.assert_allclose(got.to_numpy(), q, rtol=1e-12)
@@ -340,7 +343,7 @@ def test_weights_csv_weights_reproduce_the_weighted_pool_and_their_scale_does_no
 
 def test_scaling_every_value_scales_the_ensembles_and_keeps_the_weights() -> None:
     # Calibration uses bin counts only, and the information score on the intrinsic range with
-    # a uniform background is unchanged by x -> c x (its widths r_j are ratios; METHODS §2
+    # a uniform background is unchanged by x -> c x (its widths r_j are ratios; docs/methods.md §2
     # formula); so weights and alpha stay, and every pooled quantile scales by c.
     fc, obs = history_two_rated()
     base = build_ensemble(fc, obs, issued=D)
@@ -355,8 +358,8 @@ def test_scaling_every_value_scales_the_ensembles_and_keeps_the_weights() -> Non
 
 def test_pooled_cdf_is_monotone_and_between_the_members() -> None:
     # F_pool = sum_e w_e F_e is a convex combination of the members' CDFs (Cooke 1991 ch. 12;
-    # METHODS §4), so at the pool's quantiles it is non-decreasing, equals the level, and lies
-    # between the smallest and largest member CDF.
+    # docs/methods.md §4), so at the pool's quantiles it is non-decreasing, equals the level,
+    # and lies between the smallest and largest member CDF.
     fc, obs = history_two_rated()
     res = build_ensemble(fc, obs, issued=D, settings=EnsembleSettings(alpha=0.0))
     w = res.weights.sort_values("model")["weight"].to_numpy()
@@ -387,16 +390,17 @@ DENSE = np.round(np.arange(1, 1000) / 1000, 3)
 
 
 def mixture_quantile(t: float, comps: Sequence[tuple[float, float]]) -> float:
-    """Quantile of the equal-weight normal mixture (METHODS §4 snippet, scipy brentq)."""
+    """Quantile of the equal-weight normal mixture (docs/methods.md §4, scipy brentq)."""
     return brentq(lambda v: np.mean([norm.cdf(v, m, s) for m, s in comps]) - t, -50, 50)
 
 
 @pytest.mark.parametrize(
     ("comps", "q05_q50_q95", "vincent"),
     [
-        # METHODS check P1 (Lichtendahl et al. 2013): N(0,1) & N(2,1), w = 1/2
+        # Check P1, docs/methods.md §4 (Lichtendahl et al. 2013): N(0,1) & N(2,1), w = 1/2
         (((0.0, 1.0), (2.0, 1.0)), (-1.2845, 1.0, 3.2845), (-0.6449, 1.0, 2.6449)),
-        # METHODS check P2: N(0,1) & N(0,2^2): 90% widths 5.2296 (pool), 4.9346 (Vincent)
+        # Check P2, docs/methods.md §4: N(0,1) & N(0,2^2): 90% widths 5.2296 (pool), 4.9346
+        # (Vincent)
         (((0.0, 1.0), (0.0, 2.0)), (-2.6148, 0.0, 2.6148), (-2.4673, 0.0, 2.4673)),
     ],
 )
@@ -424,7 +428,8 @@ def test_dense_normal_members_give_the_mixture_and_the_median_is_sharper(
     qmed = pooled(res, "quantile_median")
     np.testing.assert_allclose(qmed.loc[[0.05, 0.5, 0.95]], vincent, atol=1e-4)
     # quantile averaging is sharper than the linear pool (Lichtendahl et al. 2013): a narrower
-    # 90% interval here (METHODS P1: 3.2898 against 4.5690; P2: 4.9346 against 5.2296)
+    # 90% interval here (docs/methods.md §4, P1: 3.2898 against 4.5690; P2: 4.9346 against
+    # 5.2296)
     lop = pooled(res, "equal_pool")
     np.testing.assert_allclose(lop[0.95] - lop[0.05], q05_q50_q95[2] - q05_q50_q95[0], atol=5e-3)
     assert qmed[0.95] - qmed[0.05] < lop[0.95] - lop[0.05]
@@ -515,7 +520,7 @@ def test_counts_are_floored_at_zero_and_signed_quantities_are_not() -> None:
     fc = table([rows("a", q), rows("a", q, quantity="growth")])
     res = build_ensemble(fc, NO_OBS, issued=D, settings=EnsembleSettings(signed=("growth",)))
     e = res.ensemble
-    for method in ("weighted_pool", "equal_pool", "quantile_median"):
+    for method in ("weighted_pool", "equal_pool", "quantile_median", "recalibrated_pool"):
         counts = e.loc[(e["method"] == method) & (e["quantity"] == "admissions"), "value"]
         growth = e.loc[(e["method"] == method) & (e["quantity"] == "growth"), "value"]
         np.testing.assert_allclose(counts, np.maximum(q, 0.0))
@@ -532,7 +537,7 @@ def test_pools_use_the_levels_every_member_gives() -> None:
     ]
     res = build_ensemble(table(parts), NO_OBS, issued=D)
     e = res.ensemble
-    for method in ("weighted_pool", "equal_pool", "quantile_median"):
+    for method in ("weighted_pool", "equal_pool", "quantile_median", "recalibrated_pool"):
         both = e.loc[(e["method"] == method) & (e["region"] == "r00"), "level"]
         alone = e.loc[(e["method"] == method) & (e["region"] == "r01"), "level"]
         np.testing.assert_allclose(both, TAU)
@@ -706,21 +711,6 @@ def write_season(
 Run = Callable[..., tuple[int, str, str]]
 
 
-@pytest.fixture
-def run(capsys: pytest.CaptureFixture[str]) -> Run:
-    """Call ``main(argv)``; return (exit code, stdout, stderr)."""
-
-    def call(*argv: object) -> tuple[int, str, str]:
-        try:
-            code = main([str(a) for a in argv])
-        except SystemExit as exc:
-            code = int(exc.code) if exc.code is not None else 0
-        out, err = capsys.readouterr()
-        return code, out, err
-
-    return call
-
-
 ISSUE = pd.Timestamp("2026-10-26")  # the 8th issue date of write_season
 OUTPUTS = ("ensemble.csv", "weights.csv", "robustness.csv", "ensemble_summary.json")
 
@@ -779,14 +769,14 @@ def test_ensemble_command_writes_the_documented_files(tmp_path: Path, run: Run) 
     assert (late["weight"] == 0).all()
     assert late["status"].str.startswith("not yet rated").all()
     ens = pd.read_csv(tmp_path / "out" / "ensemble.csv")
-    assert set(ens["method"]) == {"weighted_pool", "equal_pool", "quantile_median"}
+    assert set(ens["method"]) == set(METHODS)
     assert (ens["issued"] == "2026-10-26").all()
     summary = json.loads((tmp_path / "out" / "ensemble_summary.json").read_text())
     assert summary["issued"] == "2026-10-26"
     assert summary["history_as_of"] == "2026-10-24"
     assert {g["horizon"] for g in summary["groups"]} == {1, 2}
     for g in summary["groups"]:
-        assert {"alpha", "pool_calibration", "pool_information"} <= set(g)
+        assert {"alpha", "pool_calibration", "pool_information", "recalibration"} <= set(g)
     assert "Weighted-pool weights, issued 2026-10-26" in out
     assert "wrote ensemble.csv" in err
 

@@ -97,7 +97,7 @@ def test_verdict_explanations_quote_the_counts() -> None:
     assert "100 of 100" in why
     assert "about 10 expected" in why
     _, why = verdict_from_bins([20, 80, 100, 0, 0, 0], passes=False, rated=True)
-    assert "200 of 200 observations fell below its median" in why
+    assert "for 200 of 200 target weeks the observation fell below its median" in why
     _, why = verdict_from_bins([10, 40, 50, 50, 40, 10], passes=True, rated=True)
     assert "20 of 200" in why
 
@@ -136,6 +136,17 @@ def _weighted_pool(run: BriefingRun) -> pd.DataFrame:
     )
 
 
+def _headline_rows(run: BriefingRun) -> pd.DataFrame:
+    """The rows of each quantity's headline combination (the outlook's source)."""
+    chosen = {h["quantity"]: h["method"] for h in run.facts.headline}
+    assert set(chosen) == set(run.config.quantities)
+    e = run.ensemble.ensemble
+    wp = e.loc[e["method"] == e["quantity"].map(chosen)]
+    return wp.pivot_table(
+        index=["region", "quantity", "horizon"], columns="level", values="value", aggfunc="first"
+    )
+
+
 def _level(wide: pd.DataFrame, tau: float) -> float:
     return next(c for c in wide.columns if abs(c - tau) < 1e-9)
 
@@ -146,7 +157,7 @@ def test_the_total_comes_from_the_total_region_s_own_forecasts(demo_run: Briefin
     assert cfg.total_region is not None
     assert facts.total_available
     assert cfg.region_name(cfg.total_region) in facts.total_note
-    wide = _weighted_pool(demo_run)
+    wide = _headline_rows(demo_run)
     totals = [o for o in facts.outlook if o.is_total]
     assert {(o.quantity, o.horizon) for o in totals} == {
         (q, h) for q in cfg.quantities for h in cfg.horizons
@@ -168,7 +179,6 @@ def test_the_total_comes_from_the_total_region_s_own_forecasts(demo_run: Briefin
         summed_row = tuple(round_count(summed[t]) for t in (0.05, 0.25, 0.5, 0.75, 0.95))
         own_row = (o.range90[0], o.range50[0], o.median, o.range50[1], o.range90[1])
         differs += own_row != summed_row
-        assert o.median != round_count(summed[0.5])
     assert differs == len(totals)
 
 
@@ -211,6 +221,9 @@ def _facts_with(run: BriefingRun, cfg: BriefingConfig) -> BriefingFacts:
         revisions=pd.DataFrame(
             columns=["region", "quantity", "week_ending", "value_then", "value_now", "change"]
         ),
+        nowcast=run.nowcast,
+        settle=run.settle,
+        headline=run.headline,
     )
 
 
@@ -239,7 +252,7 @@ def test_without_a_total_region_no_total_is_available(demo_run: BriefingRun) -> 
 
 @pytest.mark.slow
 def test_rates_per_100000_use_the_configured_population(demo_run: BriefingRun) -> None:
-    wide = _weighted_pool(demo_run)
+    wide = _headline_rows(demo_run)
     for o in demo_run.facts.outlook:
         pop = demo_run.config.regions[o.region].population
         assert pop is not None
@@ -265,36 +278,70 @@ def test_change_from_the_last_observation(demo_run: BriefingRun) -> None:
         assert o.last_value == round_count(value)
         assert o.last_week == f"{week:%Y-%m-%d}"
         assert pd.Timestamp(o.last_week) < demo_run.issued
-        assert o.change == o.median - o.last_value
+        # the change and direction compare with last week's nowcast when it is provisional
+        reference = o.last_value if o.last_value_nowcast is None else o.last_value_nowcast
+        assert o.change == o.median - reference
         assert o.change_text == format_count(abs(o.change))
-        if abs(o.change) >= 0.05 * o.last_value and o.last_value > 0:
+        if abs(o.change) >= 0.05 * reference and reference > 0:
             assert o.direction == ("up" if o.change > 0 else "down")
+        else:
+            assert o.direction == "about the same"
 
 
 @pytest.mark.slow
-def test_every_verdict_follows_from_its_bins(demo_run: BriefingRun) -> None:
+def test_every_verdict_follows_from_its_items(demo_run: BriefingRun) -> None:
+    # Each verdict counts the model's scored items of the horizons shown, one unit per region
+    # and target week, without the jurisdiction total (every demo team forecasts the regions);
+    # its explanation counts the 1-week-ahead forecasts (forebrief.scoring.verdict).
     cfg, facts = demo_run.config, demo_run.facts
     assert demo_run.scores is not None
-    by_model = demo_run.scores.by_model
+    by_model, by_item = demo_run.scores.by_model, demo_run.scores.by_item
     shown = by_model.loc[by_model["horizon"].isin(cfg.horizons)]
+    items = by_item.loc[by_item["horizon"].isin(cfg.horizons) & by_item["bin"].notna()]
     assert facts.verdicts
     for v in facts.verdicts:
         part = shown.loc[(shown["model"] == v.model) & (shown["quantity"] == v.quantity)]
-        bins = [int(part[f"bin_{j}"].sum()) for j in range(P_CM.size)]
+        mine = items.loc[(items["model"] == v.model) & (items["quantity"] == v.quantity)]
+        regional = mine.loc[mine["region"] != cfg.total_region]
+        bins = np.bincount(regional["bin"].astype(int), minlength=P_CM.size).tolist()
         assert list(v.bins) == bins
-        assert v.n_items == sum(bins)
-        assert v.outside_90 == bins[0] + bins[-1]
-        assert v.below_median == sum(bins[:3])
-        rated = v.n_items >= cfg.min_items * len(part)
-        expected, _ = verdict_from_bins(bins, passes=_passes(bins, power=cfg.power), rated=rated)
-        assert v.verdict == expected, v.model
+        assert v.n_items == len(regional) == sum(bins)
+        assert v.n_evidence == len(regional[["region", "week_ending"]].drop_duplicates())
+        first = regional.loc[regional["horizon"] == v.pattern_horizon, "bin"].astype(int)
+        assert v.pattern_horizon == min(cfg.horizons)
+        assert v.outside_90 == int(((first == 0) | (first == P_CM.size - 1)).sum())
+        assert v.below_median == int((first < 3).sum())
+        assert v.expected_outside_90 == pytest.approx(0.1 * len(first), abs=0.05)
+        rated = part[[f"bin_{j}" for j in range(P_CM.size)]].to_numpy().sum() >= (
+            cfg.min_items * len(part))
+        assert (v.verdict == "not yet rated") == (not rated), v.model
+        if rated and v.calibration is not None:
+            assert (v.verdict == "reliable") == (v.calibration >= 0.05), v.model
+
+
+@pytest.mark.slow
+def test_the_demo_teams_earn_the_verdicts_they_were_designed_for(demo_run: BriefingRun) -> None:
+    # the scenario's teams (forebrief.demo.scenario.TEAMS) declare the verdict their design
+    # should earn; a lagging team has no single verdict of its own
+    from forebrief.demo.scenario import TEAMS
+
+    got = {(v.model, v.quantity): v.verdict for v in demo_run.facts.verdicts}
+    quantities = {v.quantity for v in demo_run.facts.verdicts}
+    checked = 0
+    for team in TEAMS:
+        for q in quantities:
+            if team.expected_verdict != "lags" and (team.id, q) in got:
+                assert got[(team.id, q)] == team.expected_verdict, (team.id, q, got[(team.id, q)])
+                checked += 1
+    # the calibrated, too narrow, too wide and biased teams are rated for every quantity
+    assert checked >= 4 * len(quantities)
 
 
 @pytest.mark.slow
 def test_the_cautions_are_the_standard_ones(demo_run: BriefingRun) -> None:
     assert demo_run.facts.cautions == CAUTIONS
     joined = " ".join(CAUTIONS)
-    # CONVENTIONS section 4: horizon limits, provisional data, model disagreement, misses,
+    # docs/conventions.md §4: horizon limits, provisional data, model disagreement, misses,
     # and deference to local judgment (Funk et al. 2019; WHO ERC 2017)
     for phrase in (
         "weeks ahead",
@@ -345,10 +392,28 @@ def mixture_run(tmp_path_factory: pytest.TempPathFactory) -> BriefingRun:
         observations=(folder / "observations.csv",),
         horizons=(1,),
         thresholds=(Threshold("larchfield", "cases", THRESHOLD),),
+        headline="weighted_pool",  # these tests check the pool's mixture arithmetic
     )
     inputs = load_inputs(cfg.forecasts, cfg.observations)
     assert not inputs.problems
     return run_briefing(cfg, inputs)
+
+
+def test_the_median_of_the_models_gives_its_own_exceedance(mixture_run: BriefingRun) -> None:
+    # with the quantile median as headline, P(Y > t) comes from its own quantiles as a
+    # piecewise-linear CDF (checked with numpy.interp between the 199 levels)
+    from forebrief.facts import round_probability
+
+    cfg = dataclasses.replace(mixture_run.config, headline="quantile_median")
+    inputs = load_inputs(cfg.forecasts, cfg.observations)
+    run = run_briefing(cfg, inputs)
+    (row,) = run.facts.outlook
+    assert row.method == "quantile_median"
+    e = run.ensemble.ensemble
+    qm = e.loc[e["method"] == "quantile_median"].sort_values("level")
+    expected = 1.0 - float(np.interp(LAST, qm["value"], qm["level"]))
+    assert row.p_above_last == round_probability(expected)
+    assert row.median == round_count(float(qm.loc[np.isclose(qm["level"], 0.5), "value"].iloc[0]))
 
 
 def _pool_sf(

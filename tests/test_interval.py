@@ -1,6 +1,6 @@
 """Checks of the quantile, interval and weighted interval scores.
 
-Outside references: the worked examples W1, W2, L1, K2 of /work/shared/METHODS.md (Bracher
+Outside references: the worked examples W1, W2, L1, K2 of docs/methods.md (Bracher
 et al. 2021; Bosse et al. 2023; Gneiting & Raftery 2007) and the scoringrules library
 (`crps_quantile`, `interval_score`, `quantile_score`, `weighted_interval_score`) called here.
 """
@@ -67,7 +67,8 @@ def _random_forecasts(levels, n, seed):
 @pytest.mark.parametrize(
     ("y", "wis", "dispersion", "over", "under"),
     [
-        # METHODS W1 and W2, Bracher et al. (2021), WIS formula and decomposition
+        # Checks W1 and W2 (docs/methods.md §5), Bracher et al. (2021), WIS formula and
+        # decomposition
         (12.0, 4.66, 0.46, 0.0, 4.20),
         (6.0, 0.66, 0.46, 0.0, 0.20),
         (1.0, 2.86, 0.46, 2.40, 0.0),
@@ -83,15 +84,16 @@ def test_worked_examples(y, wis, dispersion, over, under):
 
 
 def test_w1_interval_scores():
-    # METHODS W1 (Gneiting & Raftery 2007, section 6.2): IS_0.1 = 48, IS_0.5 = 23 for y = 12.
+    # Check W1, docs/methods.md §5 (Gneiting & Raftery 2007, section 6.2): IS_0.1 = 48,
+    # IS_0.5 = 23 for y = 12.
     got = interval_score(np.array([12.0]), np.array([[2.0, 4]]), np.array([[10.0, 7]]), [0.1, 0.5])
     npt.assert_allclose(got, [[48.0, 23.0]])
     npt.assert_allclose(got[0], sr.interval_score(12.0, [2.0, 4], [10.0, 7], [0.1, 0.5]))
 
 
 def test_l1_log_scale():
-    # METHODS L1 (Bosse et al. 2023, PLOS Comput Biol): log1p-transformed W1 inputs give
-    # WIS 0.4886 = 0.0730 + 0 + 0.4157.
+    # Check L1, docs/methods.md §8 (Bosse et al. 2023, PLOS Comput Biol): log1p-transformed
+    # W1 inputs give WIS 0.4886 = 0.0730 + 0 + 0.4157.
     parts = wis_parts(np.log1p(np.array([12.0])), np.log1p(Q_W)[None, :], TAU5)
     npt.assert_allclose(parts.wis, 0.4886, atol=5e-5)
     npt.assert_allclose(parts.dispersion, 0.0730, atol=5e-5)
@@ -102,7 +104,8 @@ def test_l1_log_scale():
 @pytest.mark.parametrize(
     ("n_levels", "expected", "tol"),
     [
-        # METHODS K2 (Bracher et al. 2021: WIS -> CRPS as the levels fill (0, 1)).
+        # Check K2, docs/methods.md §9 (Bracher et al. 2021: WIS -> CRPS as the levels fill
+        # (0, 1)).
         (99, 0.826860, 5e-7),
         (999, 0.826867, 5e-7),
     ],
@@ -117,7 +120,7 @@ def test_k2_midpoint_levels_converge_to_the_normal_crps(n_levels, expected, tol)
 
 
 def test_k2_the_23_standard_levels_do_not_converge():
-    # METHODS K2: the 23-level set gives 0.728474, well below the CRPS 0.826866.
+    # Check K2, docs/methods.md §9: the 23-level set gives 0.728474, well below the CRPS 0.826866.
     got = wis_parts(np.array([1.3]), norm.ppf(TAU23)[None, :], TAU23).wis[0]
     npt.assert_allclose(got, 0.728474, atol=5e-7)
     assert got < float(sr.crps_normal(1.3, 0.0, 1.0)) - 0.09
@@ -162,7 +165,7 @@ def test_wis_equals_scoringrules_crps_quantile(case):
 @pytest.mark.parametrize("case", CASES)
 def test_wis_equals_scoringrules_weighted_interval_score_numba(case):
     # scoringrules weighted_interval_score, numba backend, default weights w0 = 1/2,
-    # w_k = alpha_k / 2 (the paper's WIS; METHODS section 5).
+    # w_k = alpha_k / 2 (the paper's WIS; docs/methods.md §5).
     y, q, levels = CASES[case]
     ref = sr.weighted_interval_score(*_sr_args(y, q, levels), backend="numba")
     npt.assert_allclose(wis_parts(y, q, levels).wis, ref, rtol=1e-12, atol=1e-9)
@@ -196,7 +199,7 @@ def test_wis_is_the_mean_quantile_score(case):
 
 
 def test_scoringrules_numpy_backend_median_term():
-    """Document the numpy-backend defect of scoringrules 0.10.0 (METHODS W3, our own check).
+    """Document the numpy-backend defect of scoringrules 0.10.0 (W3, our own; docs/methods.md §5).
 
     Its numpy backend adds w_median * median where the paper has w_median * |y - median|,
     giving 4.26 instead of 4.66 on W1. If a later release fixes it, the result agrees with
@@ -214,7 +217,7 @@ def test_scoringrules_numpy_backend_median_term():
         # Fixed release: numpy backend agrees with the paper's WIS.
         npt.assert_allclose(got, ours, rtol=1e-12)
     else:
-        # Defect present (seen in scoringrules 0.10.0): METHODS values 4.26, 1.46, 3.06.
+        # Defect present (seen in scoringrules 0.10.0): check W3's 4.26, 1.46, 3.06.
         npt.assert_allclose(
             got, defective, rtol=1e-12, err_msg=f"scoringrules {SR_VERSION}: neither formula"
         )
@@ -294,7 +297,7 @@ def test_central_intervals_pairs_levels_with_tolerance():
 
 
 def test_coverage_counts_ties_as_covered():
-    # METHODS section 5 "Coverage ties": covered when l <= y <= u.
+    # docs/methods.md §5 "Coverage ties": covered when l <= y <= u.
     y = np.array([2.0, 10.0, 1.999, 10.001, 6.0])
     got = interval_coverage(y, np.full(5, 2.0), np.full(5, 10.0))
     npt.assert_array_equal(got, [True, True, False, False, True])
@@ -304,8 +307,8 @@ def test_coverage_counts_ties_as_covered():
 
 
 def test_v1_coverage_of_the_regression_model():
-    # METHODS V1 (Gneiting et al. 2007): model 1 of METHODS section 3 covers 6 of 10 items
-    # with its 50 % interval and 9 of 10 with its 90 % interval.
+    # Check V1, docs/methods.md §9 (Gneiting et al. 2007): model 1 of §3 there covers 6 of 10
+    # items with its 50 % interval and 9 of 10 with its 90 % interval.
     x = np.array([12, 30, 45, 80, 150, 220, 400, 650, 900, 1500.0])
     dl = np.array([0.10, -0.20, 0.30, -0.40, 0.05, 0.20, -0.10, 0.50, -0.30, 0.00])
     q = x[:, None] * np.exp(dl[:, None] + 0.3 * norm.ppf(TAU5)[None, :])

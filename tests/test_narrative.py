@@ -1,6 +1,6 @@
 """The briefing's text: every number comes from the facts, and the wording follows guidance.
 
-Guidance checked (CONVENTIONS section 4): IPCC calibrated language reserves "likely" for a
+Guidance checked (docs/conventions.md §4): IPCC calibrated language reserves "likely" for a
 probability of at least 66% (Mastrandrea et al. 2010, IPCC AR5 guidance note), so a 50% range
 is never "likely"; a verbal term goes with its number (Budescu et al. 2014, Nat. Clim. Change
 4:508-512); probabilities are given as frequencies (Spiegelhalter 2017, Annu. Rev. Stat. Appl.
@@ -306,6 +306,14 @@ def test_probabilities_are_given_as_frequencies(demo_run: BriefingRun) -> None:
         and o.horizon == h1
         and not o.is_total
     }
+    # the headline's alert-line chance (one or two weeks ahead) is always printed
+    risk = demo_run.facts.summary["top_risk"]
+    texts |= {
+        o.p_above_threshold_text
+        for o in demo_run.facts.outlook
+        if risk and (o.region, o.quantity, o.horizon)
+        == (risk["region"], risk["quantity"], risk["horizon"])
+    }
     assert texts
     flat = " ".join(demo_run.text.split())
     for t in texts:
@@ -336,7 +344,7 @@ def test_every_caution_is_in_the_text(run: BriefingRun) -> None:
 
 
 def test_the_contact_and_versions_are_given(demo_run: BriefingRun) -> None:
-    # CONVENTIONS section 4, caution 5: a contact, and the model and data versions
+    # docs/conventions.md §4, caution 6: a contact, and the model and data versions
     facts = demo_run.facts
     flat = " ".join(demo_run.text.split())
     assert f"Contact: {facts.contact}" in flat

@@ -13,11 +13,11 @@ and scores them; every pooled number is then recomputed here from the published 
 with scoringrules, scipy and plain numpy, never with forebrief's own score functions:
 
 - WIS: Bracher, Ray, Gneiting & Reich (2021), PLOS Comput Biol 17(2): e1008618, the WIS
-  formula and its decomposition (METHODS section 5); per item it must equal
+  formula and its decomposition (docs/methods.md §5); per item it must equal
   ``scoringrules.crps_quantile`` (mean of twice the pinball loss, which equals the WIS for a
   symmetric level set with 0.5) and the WIS assembled from ``scoringrules.interval_score``.
   scoringrules' ``weighted_interval_score`` is not used: its numpy backend adds
-  w_median * median instead of w_median * |obs - median| (METHODS section 5, scoringrules
+  w_median * median instead of w_median * |obs - median| (docs/methods.md §5, scoringrules
   0.10.0).
 - Calibration: Cooke (1991), Experts in Uncertainty, ch. 12: chi2.sf(2 N I(s, p), R - 1) with
   I(s, p) from ``scipy.special.rel_entr``.
@@ -26,7 +26,7 @@ with scoringrules, scipy and plain numpy, never with forebrief's own score funct
 - Weights: Cooke (1991) ch. 12; Cooke & Goossens (2008), RESS 93:657-674.
 - Relative WIS: Cramer et al. (2022), PNAS 119(15): e2113561119, Methods (pairwise ratios,
   geometric mean); the convention over all models with common items, the model itself
-  included, is the project's definition (METHODS section 6, whose reading of the paper's
+  included, is the project's definition (docs/methods.md §6, whose reading of the paper's
   exponent is from memory).
 - Coverage (l <= y <= u), absolute error and sign bias of the median: the project's
   definitions; common practice, no source.
@@ -285,12 +285,15 @@ def _reference_pooled(items: pd.DataFrame) -> pd.DataFrame:
     pooled = pd.DataFrame(rows)
     pooled["combined"] = pooled["calibration"] * pooled["information"]
     # weights (Cooke 1991 ch. 12): C I 1{C >= alpha}, normalised per (quantity, horizon)
+    # over the members; the named baseline is the yardstick and takes no weight (nan)
     pooled["passes_cutoff"] = pooled["calibration"] >= ALPHA
-    raw = pooled["combined"] * pooled["passes_cutoff"]
+    member = pooled["model"] != BASELINE
+    raw = (pooled["combined"] * pooled["passes_cutoff"]).where(member, 0.0)
     total = raw.groupby([pooled["quantity"], pooled["horizon"]]).transform("sum")
-    size = pooled.groupby(["quantity", "horizon"])["model"].transform("size")
+    size = member.groupby([pooled["quantity"], pooled["horizon"]]).transform("sum")
     pooled["equal_weights"] = total <= 0
-    pooled["weight"] = np.where(total > 0, raw / total.where(total > 0, 1.0), 1.0 / size)
+    weight = np.where(total > 0, raw / total.where(total > 0, 1.0), 1.0 / size)
+    pooled["weight"] = np.where(member, weight, np.nan)
     pooled["relative_wis"] = _reference_relative(items)
     return pooled
 
@@ -521,7 +524,7 @@ def test_log_background_information_on_log1p(
     # Cooke (1991) ch. 12 log-uniform background, with the ln(x + 1) offset of the issue
     ref = _reference_pooled(_reference_items(forecasts, weekly, scale="natural", background="log"))
     _compare(log_background.by_model, ref, ["information", "combined", "weight", "calibration"])
-    # calibration does not depend on the background (METHODS section 2); WIS neither
+    # calibration does not depend on the background (docs/methods.md §2); WIS neither
     for name in ("calibration", "wis"):
         npt.assert_array_equal(log_background.by_model[name], natural.by_model[name])
     assert not np.allclose(log_background.by_model["information"], natural.by_model["information"])

@@ -1,6 +1,6 @@
 """Checks of pairwise relative skill (Cramer et al. 2022, PNAS, Methods; Bracher et al. 2021).
 
-Check value R1 is from /work/shared/METHODS.md section 6; the rest are invariances and a
+Check value R1 is from docs/methods.md §6; the rest are invariances and a
 slow loop reference written straight from the definition.
 """
 
@@ -52,8 +52,9 @@ def _random_scores(m, n, missing, seed):
 
 
 def test_r1_check_value():
-    # METHODS R1 (Cramer et al. 2022): theta_AB = 1, theta_A,base = 25/30, theta_B,base =
-    # 15/20; geometric mean over all three models: scaled A 0.8046, B 0.7768, base 1.
+    # Check R1, docs/methods.md §6 (Cramer et al. 2022): theta_AB = 1, theta_A,base = 25/30,
+    # theta_B,base = 15/20; geometric mean over all three models: scaled A 0.8046, B 0.7768,
+    # base 1.
     got = relative_skill(R1_SCORES, baseline=2)
     assert isinstance(got, RelativeSkill)
     npt.assert_allclose(got.theta, [0.9410, 0.9086, 1.1696], atol=5e-5)

@@ -15,7 +15,7 @@ from dataclasses import dataclass, field
 import numpy as np
 import pandas as pd
 
-from forebrief.ensemble import EnsembleSettings, build_ensemble, with_baseline
+from forebrief.ensemble import EnsembleSettings, build_ensemble, settled_on, with_baseline
 from forebrief.errors import ConfigError
 from forebrief.observations import observations_as_of
 from forebrief.scoring.engine import ScoreSettings, score_forecasts
@@ -60,6 +60,7 @@ def backtest(
     end: pd.Timestamp,
     settings: EnsembleSettings | None = None,
     progress: Callable[[int, int], None] | None = None,
+    rating_date: pd.Timestamp | None = None,
 ) -> BacktestResult:
     """Back-test the ensembles for every issue date from ``start`` to ``end``.
 
@@ -122,6 +123,17 @@ def backtest(
     latest = latest.assign(reported=pd.NaT).astype({"reported": "datetime64[ns]"})
     if latest.empty:
         raise ConfigError("the observations are empty: nothing can be back-tested")
+    if settings.settle_weeks > 0:
+        # only targets settled on the rating date are scored (default: the day after the
+        # latest observed week, i.e. the next issue date)
+        day = (pd.Timestamp(rating_date) if rating_date is not None
+               else pd.Timestamp(latest["week_ending"].max()) + pd.Timedelta(days=2))
+        latest = settled_on(latest, day, settings.settle_weeks)
+        if latest.empty:
+            raise ConfigError(
+                f"no observed week is settled ({settings.settle_weeks} weeks old) on "
+                f"{day:%Y-%m-%d}: nothing can be back-tested; fix: use --settle-weeks 0 or "
+                "a later date")
     as_of = pd.Timestamp(latest["week_ending"].max())
     window = max(1, math.ceil((as_of - start).days / 7) + 1)
     scored = score_forecasts(

@@ -83,7 +83,8 @@ def sum_quantiles(changes: np.ndarray, *, steps: Sequence[int], levels: np.ndarr
     """Quantiles of the sum of s independent draws from the symmetrised ``changes``.
 
     The draws come from D = {d} u {-d} (Cramer et al. 2022, PNAS, Methods: baseline model);
-    summing s of them to widen the forecast with the horizon is a [design choice] (METHODS §7).
+    summing s of them to widen the forecast with the horizon is a [design choice]
+    (docs/methods.md §7).
     Returns an array of shape (len(steps), len(levels)): row i holds the type-7 quantiles
     (:func:`multiset_quantile`) of the multiset of all (2m)^s ordered s-fold sums, m =
     len(changes), which equals ``np.quantile`` on that explicit multiset. With no changes, or

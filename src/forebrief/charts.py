@@ -10,7 +10,7 @@ The look is our own and is defined once, below: one colour per method from the O
 palette (Okabe & Ito 2008, "Color Universal Design"), line style and marker as well as
 colour for every series, left-aligned bold panel titles, a light horizontal grid, DejaVu Sans
 (ships with matplotlib, so the SVG text and the PDF font agree), sizes that fit an A4 column
-6.85 in wide (CONVENTIONS section 3).
+6.85 in wide (docs/conventions.md §3).
 
 Exports are reproducible: :func:`figure_svg` writes real ``<text>`` (``svg.fonttype="none"``),
 no date and a fixed ``svg.hashsalt``; :func:`figure_png` writes no Software tag. Two renders
@@ -119,6 +119,7 @@ PALETTE: Mapping[str, str] = {
     "weighted_pool": OKABE_ITO["blue"],
     "equal_pool": OKABE_ITO["bluish green"],
     "quantile_median": OKABE_ITO["orange"],
+    "recalibrated_pool": OKABE_ITO["sky blue"],
     "baseline": OKABE_ITO["reddish purple"],
     "observed": OKABE_ITO["black"],
     "threshold": OKABE_ITO["vermillion"],
@@ -130,9 +131,10 @@ _METHOD_STYLE: Mapping[str, tuple[str, str]] = {
     "weighted_pool": ("-", "o"),
     "equal_pool": ("--", "s"),
     "quantile_median": ("-.", "D"),
+    "recalibrated_pool": ("-", "v"),
     "baseline": (":", "^"),
 }
-_METHOD_ORDER = ("weighted_pool", "equal_pool", "quantile_median")
+_METHOD_ORDER = ("weighted_pool", "equal_pool", "quantile_median", "recalibrated_pool")
 
 #: Marker and colour per verdict (reliability chart).
 _VERDICT_STYLE: Mapping[str, tuple[str, str, bool]] = {
@@ -155,7 +157,7 @@ INK = "#222222"
 INK_SOFT = "#5a5a5a"
 GRID = "#dcdcdc"
 
-#: A4 portrait, 18 mm side margins: 174 mm = 6.85 in (CONVENTIONS section 3).
+#: A4 portrait, 18 mm side margins: 174 mm = 6.85 in (docs/conventions.md §3).
 COLUMN_WIDTH = 6.85
 FAN_SIZE = (COLUMN_WIDTH, 3.4)
 PANEL_HEIGHT = 1.8
@@ -438,7 +440,7 @@ def _draw_fan(
         marker="o",
         ms=3.5,
         gid="median",
-        label="combined forecast, median",
+        label=f"{first.method_label or 'combined forecast'}, median",
         zorder=4,
     )
 
@@ -476,6 +478,19 @@ def _draw_fan(
                 gid="provisional",
                 label="observed, provisional (may be revised)",
             )
+        now = hist.get("nowcast") or [None] * hv.size
+        has_now = [k for k, c in enumerate(now) if c is not None]
+        if has_now:
+            nx = hw[has_now]
+            nv = np.array([now[k][0] for k in has_now], dtype=float)
+            nlo = np.array([now[k][1] for k in has_now], dtype=float)
+            nhi = np.array([now[k][2] for k in has_now], dtype=float)
+            ax.vlines(nx, nlo, nhi, color=PALETTE["observed"], lw=1.0, alpha=0.7, zorder=5,
+                      gid="nowcast-range")
+            ax.plot(nx, nv, lw=0, marker="D", ms=3.6, color=PALETTE["observed"], alpha=0.7,
+                    zorder=6, gid="nowcast",
+                    label="expected once late reports are in (with its 90% range)")
+            tops.append(float(np.nanmax(nhi)))
         tops.append(float(np.nanmax(hv)))
         x_lo = hw[0]
     else:

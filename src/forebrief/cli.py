@@ -280,7 +280,9 @@ def _cmd_score(args: argparse.Namespace, con: _Console) -> int:
     return 0 if not result.by_model.empty else 1
 
 
-def _report_problems(problems: Sequence[Any], con: _Console) -> None:
+def _report_problems(problems: Sequence[Any], con: _Console, *,
+                     errors_mean: str = "their forecasts are quarantined and listed in "
+                     "excluded.csv") -> None:
     errors = [p for p in problems if p.severity == "error"]
     warnings = [p for p in problems if p.severity == "warning"]
     if errors:
@@ -288,8 +290,7 @@ def _report_problems(problems: Sequence[Any], con: _Console) -> None:
     if warnings and not con.quiet:
         con.problem_lines([p.line() for p in warnings])
     if errors or warnings:
-        con.say(f"{len(errors)} input error(s) (their forecasts are quarantined and listed in "
-                f"excluded.csv), {len(warnings)} warning(s)")
+        con.say(f"{len(errors)} input error(s) ({errors_mean}), {len(warnings)} warning(s)")
 
 
 def _print_score_summary(result: Any, con: _Console) -> None:
@@ -303,7 +304,8 @@ def _print_score_summary(result: Any, con: _Console) -> None:
                 "best rel. WIS"):
         table.add_column(col, justify="right" if col in ("ahead", "models", "items") else "left")
     for (q, h), part in result.by_model.groupby(["quantity", "horizon"], sort=True):
-        top = part.sort_values("weight", ascending=False).head(3)
+        # a named baseline has no weight (nan): it is the yardstick, not a candidate
+        top = part.dropna(subset=["weight"]).sort_values("weight", ascending=False).head(3)
         weights = ", ".join(f"{m} {w:.2f}" for m, w in zip(top["model"], top["weight"],
                                                           strict=True))
         rel = part.dropna(subset=["relative_wis"]).sort_values("relative_wis")
@@ -355,6 +357,7 @@ def _cmd_baseline(args: argparse.Namespace, con: _Console) -> int:
     floors = sorted(set(known["quantity"]) - set(_signed(args)))
     table = persistence_forecast(known[["region", "quantity", "week_ending", "value"]],
                                  issued=args.issued, horizons=tuple(args.horizons),
+                                 levels=tuple(sorted(set(args.levels))),
                                  changes_window=args.changes_window, name=args.name,
                                  nonnegative=floors)
     path = write_table(table, args.out)
@@ -362,6 +365,46 @@ def _cmd_baseline(args: argparse.Namespace, con: _Console) -> int:
     con.say(f"wrote {len(table)} rows ({n_series} series x {len(args.horizons)} horizons) "
             f"of {args.name!r} to {path}")
     return 0
+
+
+def _cmd_nowcast(args: argparse.Namespace, con: _Console) -> int:
+    from forebrief.io.outputs import write_table
+    from forebrief.nowcast import nowcast_table, settle_delay
+    from forebrief.workflow import load_observations
+
+    obs = load_observations(args.observations, columns=_columns(args), signed=_signed(args),
+                            as_of=args.as_of)
+    _report_problems(obs.problems, con, errors_mean="those rows are left out")
+    table = nowcast_table(obs.table, as_of=args.as_of, recent_weeks=args.recent_weeks)
+    if table.empty:
+        raise ConfigError(f"no observation is known before {args.as_of:%Y-%m-%d}; "
+                          "fix: choose a later --as-of date")
+    path = write_table(table, args.out)
+    n_series = table.groupby(["region", "quantity"]).ngroups
+    n_open = int((~table["complete"]).sum())
+    settle = settle_delay(obs.table, as_of=args.as_of)
+    vintages = "" if obs.has_vintages else " (the data have no vintages: every week is final)"
+    con.say(f"wrote {len(table)} rows ({n_series} series, {n_open} provisional week(s)) to "
+            f"{path}; values settle after about {settle} week(s){vintages}")
+    return 0
+
+
+def _add_nowcast_command(sub: Any) -> None:
+    p = sub.add_parser("nowcast", help="estimate the complete counts of provisional weeks",
+                       description="From the vintages known on D, estimate what each recent "
+                       "week will reach once all late reports are in (chain ladder), with a "
+                       "90% range, and write one row per week.")
+    p.add_argument("--observations", required=True, nargs="+", metavar="O",
+                   help="observation file(s), with their reported vintages")
+    p.add_argument("--as-of", type=_date, required=True, metavar="D",
+                   help="use what was known on D (YYYY-MM-DD); weeks ending before D")
+    p.add_argument("--recent-weeks", type=_positive_int, default=12, metavar="N",
+                   help="recent weeks behind the development factors and shown (default 12)")
+    p.add_argument("--out", type=Path, required=True, metavar="FILE",
+                   help="output file (.csv or .parquet)")
+    _add_input_options(p)
+    _add_common(p)
+    p.set_defaults(func=_cmd_nowcast)
 
 
 def _cmd_ensemble(args: argparse.Namespace, con: _Console) -> int:
@@ -474,6 +517,8 @@ def _print_backtest(result: Any, con: _Console) -> None:
 
 
 def _add_pooling_commands(sub: Any) -> None:
+    from forebrief.schema import STANDARD_LEVELS
+
     p = sub.add_parser("baseline", help="write the persistence ('same as last week') forecast",
                        description="Quantile forecasts whose median is the last observation "
                        "known on the issue date, with a spread from recent one-week changes.")
@@ -485,6 +530,9 @@ def _add_pooling_commands(sub: Any) -> None:
                    metavar="H", help="weeks ahead (default 1 2 3 4)")
     p.add_argument("--changes-window", type=_positive_int, default=12, metavar="W",
                    help="weeks of recent one-week changes behind the spread (default 12)")
+    p.add_argument("--levels", type=_level, nargs="+", default=list(STANDARD_LEVELS),
+                   metavar="L", help="quantile levels; give the members' levels so the "
+                   "baseline is compared like for like (default the 23 standard levels)")
     p.add_argument("--out", type=Path, required=True, metavar="FILE",
                    help="output file (.csv or .parquet)")
     _add_input_options(p)
@@ -529,6 +577,7 @@ def _brief_config(args: argparse.Namespace) -> Any:
         changes["observations"] = tuple(Path(p) for p in args.observations)
     if args.archive:
         changes["archive"] = args.archive
+    changes.update(_judgement_overrides(args))
     cfg = cfg.with_overrides(**changes)
     if not cfg.forecasts or not cfg.observations:
         raise ConfigError(
@@ -536,6 +585,34 @@ def _brief_config(args: argparse.Namespace) -> Any:
             "--forecasts FILES_OR_FOLDER and --observations FILE"
         )
     return cfg
+
+
+def _n_stages() -> int:
+    from forebrief.weekly import STAGES
+
+    return len(STAGES)
+
+
+def _judgement_overrides(args: argparse.Namespace) -> dict[str, Any]:
+    """--settle-weeks and --headline, checked as the configuration keys are."""
+    from forebrief.config import check_headline, check_settle_weeks
+
+    changes: dict[str, Any] = {}
+    if getattr(args, "settle_weeks", None) is not None:
+        changes["settle_weeks"] = check_settle_weeks(args.settle_weeks, key="--settle-weeks")
+    if getattr(args, "headline", None) is not None:
+        changes["headline"] = check_headline(args.headline, key="--headline")
+    return changes
+
+
+def _add_judgement_options(p: argparse.ArgumentParser) -> None:
+    p.add_argument("--settle-weeks", metavar="N|auto",
+                   help="score only target weeks at least N weeks old on the rating date "
+                   "('auto', the default, estimates N from the vintages; 0 scores every week)")
+    p.add_argument("--headline", metavar="METHOD",
+                   help="combination for the headline: 'auto' (the median of the models unless "
+                   "another did clearly better in the back-test) or weighted_pool, equal_pool, "
+                   "quantile_median, recalibrated_pool")
 
 
 def _cmd_brief(args: argparse.Namespace, con: _Console) -> int:
@@ -546,7 +623,7 @@ def _cmd_brief(args: argparse.Namespace, con: _Console) -> int:
         raise ConfigError("--revise needs --reason \"...\" saying why the record is revised")
     if args.reason and not args.revise:
         raise ConfigError("--reason is only used with --revise")
-    with con.stages(8) as stage:
+    with con.stages(_n_stages()) as stage:
         outcome = record_briefing(cfg, issued=args.issued, stage=stage,
                                   revise_reason=args.reason if args.revise else None)
     _report_problems(outcome.problems, con)
@@ -576,11 +653,12 @@ def _cmd_demo(args: argparse.Namespace, con: _Console) -> int:
             f"changed; fix: open that record, or run forebrief demo --out ANOTHER_FOLDER"
         )
     write_scenario(generate_scenario(), out)
-    cfg = load_config(out / "forebrief.toml").with_overrides(archive=out / "archive")
+    cfg = load_config(out / "forebrief.toml").with_overrides(archive=out / "archive",
+                                                              **_judgement_overrides(args))
     con.say(f"demo inputs written to {out} (an invented scenario); running the weekly briefing")
     from forebrief.pipeline import record_briefing
 
-    with con.stages(8) as stage:
+    with con.stages(_n_stages()) as stage:
         outcome = record_briefing(cfg, issued=None, stage=stage)
     con.say("The scenario includes one team's deliberately malformed file; the lines below "
             "show how forebrief reports it (only the faulty forecasts are set aside):")
@@ -607,6 +685,7 @@ def _add_weekly_commands(sub: Any) -> None:
     p.add_argument("--revise", action="store_true",
                    help="write a new revision of an existing record (needs --reason)")
     p.add_argument("--reason", metavar="TEXT", help="why the record is revised")
+    _add_judgement_options(p)
     _add_common(p)
     p.set_defaults(func=_cmd_brief)
 
@@ -616,6 +695,7 @@ def _add_weekly_commands(sub: Any) -> None:
                        "weekly briefing there, with the archive at DIR/archive.")
     p.add_argument("--out", type=Path, default=Path("forebrief-demo"), metavar="DIR",
                    help="folder for the demo (default ./forebrief-demo)")
+    _add_judgement_options(p)
     _add_common(p)
     p.set_defaults(func=_cmd_demo)
 
@@ -888,6 +968,7 @@ def build_parser() -> argparse.ArgumentParser:
     p.set_defaults(func=_cmd_score)
 
     _add_pooling_commands(sub)
+    _add_nowcast_command(sub)
     _add_weekly_commands(sub)
     _add_archive_commands(sub)
     return parser

@@ -106,6 +106,9 @@ class BriefingConfig:
     baseline: str = "persistence"
     horizons: tuple[int, ...] = (1, 2, 3, 4)
     backtest_weeks: int = 12
+    settle_weeks: int | Literal["auto"] = "auto"
+    nowcast_weeks: int = 12
+    headline: str = "auto"
     email: EmailConfig = field(default_factory=EmailConfig)
 
     @property
@@ -161,7 +164,9 @@ _SECTIONS = {
     "inputs": {"forecasts", "observations", "columns"},
     "archive": {"folder"},
     "scoring": {"window", "alpha", "levels", "overshoot", "min_items", "power", "background",
-                "baseline", "horizons", "backtest_weeks"},
+                "baseline", "horizons", "backtest_weeks", "settle_weeks"},
+    "nowcast": {"recent_weeks"},
+    "ensemble": {"headline"},
     "jurisdiction": {"total_region"},
     "regions": None,  # free keys: region ids
     "quantities": None,  # free keys: quantity ids
@@ -261,9 +266,16 @@ def parse_config(data: Mapping[str, Any], *, source: Path | None = None,
                        f"{cols!r}", 'write columns = { value = "quantile_value" }')
         cfg["columns"] = {str(theirs): str(ours) for ours, theirs in cols.items()}
     a = data.get("archive", {})
-    if "folder" in a:
-        cfg["archive"] = _paths(a["folder"], "archive.folder", base, source)[0]
+    # the default archive folder sits beside the configuration file (README: [archive])
+    cfg["archive"] = _paths(a.get("folder", "archive"), "archive.folder", base, source)[0]
     _parse_scoring(data.get("scoring", {}), cfg, source)
+    n = data.get("nowcast", {})
+    if "recent_weeks" in n:
+        cfg["nowcast_weeks"] = int(_number(n["recent_weeks"], "nowcast.recent_weeks", source,
+                                           low=2, integer=True))
+    e = data.get("ensemble", {})
+    if "headline" in e:
+        cfg["headline"] = check_headline(e["headline"], key="ensemble.headline", source=source)
     regions = {}
     for rid, r in data.get("regions", {}).items():
         key = f"regions.{rid}"
@@ -375,9 +387,41 @@ def _parse_scoring(s: Mapping[str, Any], cfg: dict[str, Any], source: Path | Non
         cfg["horizons"] = tuple(
             sorted({int(_number(v, "scoring.horizons", source, low=1, integer=True)) for v in h})
         )
+    if "settle_weeks" in s:
+        cfg["settle_weeks"] = check_settle_weeks(s["settle_weeks"], key="scoring.settle_weeks",
+                                                 source=source)
     if "backtest_weeks" in s:
         cfg["backtest_weeks"] = int(_number(s["backtest_weeks"], "scoring.backtest_weeks",
                                             source, low=1, integer=True))
+
+
+#: Combinations the headline may use ("auto" applies the rule of :mod:`forebrief.compare`).
+HEADLINE_METHODS: tuple[str, ...] = ("weighted_pool", "equal_pool", "quantile_median",
+                                     "recalibrated_pool")
+
+
+def check_headline(value: Any, *, key: str = "ensemble.headline",
+                   source: Path | None = None) -> str:
+    """'auto' or one combination's name; anything else names the valid choices."""
+    if value == "auto" or value in HEADLINE_METHODS:
+        return str(value)
+    choices = ", ".join(repr(m) for m in ("auto", *HEADLINE_METHODS))
+    raise _err(source, key, f"must be one of {choices}; got {value!r}", 'write headline = "auto"')
+
+
+def check_settle_weeks(value: Any, *, key: str = "scoring.settle_weeks",
+                       source: Path | None = None) -> int | Literal["auto"]:
+    """'auto' (estimated from the vintages) or a whole number of weeks >= 0."""
+    if value == "auto":
+        return "auto"
+    if isinstance(value, str):
+        try:
+            value = int(value)
+        except ValueError:
+            raise _err(source, key, f"must be 'auto' or a whole number of weeks >= 0; got "
+                       f"{value!r}", 'write settle_weeks = "auto", or 0 to score every week'
+                       ) from None
+    return int(_number(value, key, source, low=0, integer=True))
 
 
 def _parse_email(e: Mapping[str, Any], source: Path | None) -> EmailConfig:

@@ -18,11 +18,11 @@ Member distribution (Cooke 1991, *Experts in Uncertainty*, ch. 12; Cooke & Slijk
 §15.3.2): the quantile function is piecewise linear through (0, L*), (tau_j, q_j) and (1, H*),
 i.e. the minimum-information density relative to a uniform background on [L*, H*]. Its CDF F
 is 0 below L*, piecewise linear through (q_j, tau_j) and 1 from H* on. Tied quantiles are point
-masses; F is right-continuous there. For a log-uniform background (METHODS §2) pass the logs
-of the quantiles (and of ``extra`` and ``x``) and exponentiate the resulting quantiles: quantiles
-are equivariant under increasing maps, so this is exact.
+masses; F is right-continuous there. For a log-uniform background (docs/methods.md §2) pass
+the logs of the quantiles (and of ``extra`` and ``x``) and exponentiate the resulting
+quantiles: quantiles are equivariant under increasing maps, so this is exact.
 
-Linear pool (Cooke 1991 ch. 12; METHODS §4): F_pool = sum_e w_e F_e.
+Linear pool (Cooke 1991 ch. 12; docs/methods.md §4): F_pool = sum_e w_e F_e.
 It is piecewise linear between the union of all members' knots, so its quantiles are found
 exactly by inverting it segment by segment, with no root finding.
 
@@ -429,7 +429,7 @@ def linear_pool_quantiles(
 ) -> FloatArray:
     """Exact quantiles of the linear pool at ``out_levels``; returns (n, len(out_levels)).
 
-    quantile(tau) = inf{x : F_pool(x) >= tau} (Cooke 1991 ch. 12; METHODS §4). All
+    quantile(tau) = inf{x : F_pool(x) >= tau} (Cooke 1991 ch. 12; docs/methods.md §4). All
     members' knots of an item are sorted once; every member with positive weight is evaluated
     at every knot (right value and left limit, so point masses are exact); between two adjacent
     knots the pool is linear, so each quantile is a linear interpolation inside one segment, or

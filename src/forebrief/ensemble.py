@@ -1,11 +1,23 @@
 """Ensembles for one issue date, with weights from what was known on that date.
 
-Three methods, each giving quantiles in the forecast format:
+Four methods, each giving quantiles in the forecast format:
 
 - ``weighted_pool``: the linear pool (mixture of CDFs) with Classical-Model performance weights
   combined x [calibration >= alpha] (Cooke 1991, ch. 12), scored on past items only;
 - ``equal_pool``: the linear pool with equal weights;
-- ``quantile_median``: at each level, the median of the members' quantiles.
+- ``quantile_median``: at each level, the median of the members' quantiles;
+- ``recalibrated_pool``: the beta-transformed equal-weight pool B_ab(F_pool(y)) (Ranjan &
+  Gneiting 2010, JRSS B 72:71; Gneiting & Ranjan 2013, Electron. J. Statist. 7:1747), with
+  (a, b) the Beta maximum-likelihood fit to the equal pool's PIT values on the history
+  window's items (:mod:`forebrief.recalibration`). The equal pool is recalibrated, not the
+  weighted one: recalibrating the equal-weight pool is the published construction, and the
+  weighted pool's weights change from week to week, so last month's PIT values would describe
+  a different pool. The fit is per (quantity, horizon) when the window has at least 20 PIT
+  values at that horizon, else on all horizons of the quantity together; with fewer than 10
+  PIT values a = b = 1 (the equal pool itself) and a note says so. Each group of the summary
+  reports ``recalibration = {a, b, n_pit, horizons, at_bound}``. The recalibrated quantiles
+  stay inside the pool's support [L*, H*], so outcomes beyond every member's range cannot be
+  reached by recalibration either.
 
 Information barrier: the weights are the Classical Model scores that
 :func:`forebrief.scoring.engine.score_forecasts` gives as of the last observed week before the
@@ -36,6 +48,7 @@ from forebrief.distributions import (
 )
 from forebrief.errors import ConfigError
 from forebrief.observations import observations_as_of
+from forebrief.recalibration import beta_levels, fit_beta, pool_pit
 from forebrief.schema import CM_LEVELS, Background, check_choice, cm_probabilities
 from forebrief.scoring.classical import bin_index, calibration_score, information_score
 from forebrief.scoring.engine import (
@@ -56,7 +69,12 @@ __all__ = [
     "history_scores",
 ]
 
-METHODS: tuple[str, ...] = ("weighted_pool", "equal_pool", "quantile_median")
+METHODS: tuple[str, ...] = (
+    "weighted_pool",
+    "equal_pool",
+    "quantile_median",
+    "recalibrated_pool",
+)
 ENSEMBLE_COLUMNS: tuple[str, ...] = (
     "method",
     "region",
@@ -96,6 +114,10 @@ ROBUSTNESS_COLUMNS: tuple[str, ...] = (
     "width_90_change",
 )
 _TOL = 1e-6
+#: fewer PIT values than this: no recalibration (a = b = 1)
+MIN_PIT = 10
+#: fewer PIT values at one horizon than this: fit on all horizons of the quantity together
+MIN_PIT_HORIZON = 20
 
 
 @dataclass(frozen=True)
@@ -112,9 +134,15 @@ class EnsembleSettings:
     background: Background = "uniform"
     power: float = 1.0
     signed: tuple[str, ...] = ()
+    #: weeks a target must have aged on the rating date before it is scored (0: every week)
+    settle_weeks: int = 0
 
     def __post_init__(self) -> None:
         check_choice("background", self.background, Background)
+        if not isinstance(self.settle_weeks, int) or self.settle_weeks < 0:
+            raise ConfigError(
+                f"settle_weeks must be a whole number of weeks >= 0; got {self.settle_weeks!r}"
+            )
         if self.alpha != "auto" and (
             isinstance(self.alpha, str) or not 0.0 <= float(self.alpha) <= 1.0
         ):
@@ -197,6 +225,19 @@ def known_on(observations: pd.DataFrame, issued: pd.Timestamp) -> pd.DataFrame:
     return known.assign(reported=pd.NaT).astype({"reported": "datetime64[ns]"})
 
 
+def settled_on(known: pd.DataFrame, day: pd.Timestamp, settle_weeks: int) -> pd.DataFrame:
+    """The weeks of ``known`` that are settled on ``day``: at least ``settle_weeks`` old.
+
+    A week's reporting delay on ``day`` is floor((day - week_ending) / 7 days); a week is
+    settled once that delay reaches the settle delay (see :func:`forebrief.nowcast.
+    settle_delay`). With ``settle_weeks = 0`` every known week is kept.
+    """
+    if settle_weeks <= 0 or known.empty:
+        return known
+    delay = (pd.Timestamp(day) - known["week_ending"]).dt.days // 7
+    return known.loc[(delay >= settle_weeks).to_numpy()].reset_index(drop=True)
+
+
 _RATING_KEYS = ["quantity", "horizon", "model"]
 
 
@@ -264,7 +305,7 @@ def history_scores(
     observed before ``issued``. It is built once and reused for the virtual-expert scores.
     O(forecast rows) for the selection plus O(window rows) for the scores.
     """
-    known = known_on(observations, issued)
+    known = settled_on(known_on(observations, issued), issued, settings.settle_weeks)
     issued_col = forecasts["issued"]
     before = (issued_col < issued).to_numpy()
     if known.empty or not before.any():
@@ -475,6 +516,75 @@ def _choose_alpha(
     return best_alpha, best, len(candidates)
 
 
+def _window_pits(
+    window: WindowTable,
+    members: np.ndarray,
+    quantity: str,
+    horizon: int | None,
+    overshoot: float,
+) -> np.ndarray:
+    """PIT values of the equal pool of ``members`` on the window's items (all horizons if None).
+
+    Items are (region, week_ending, horizon) of ``quantity``; each is pooled over the members
+    that forecast it. O(window forecasts x levels).
+    """
+    heads = window.heads
+    sel = (heads["quantity"] == quantity).to_numpy() & heads["model"].isin(members).to_numpy()
+    if horizon is not None:
+        sel &= (heads["horizon"] == horizon).to_numpy()
+    idx = np.flatnonzero(sel)
+    if idx.size == 0:
+        return np.empty(0)
+    part = heads.iloc[idx]
+    icode, n_items = group_codes([part[c] for c in ("region", "week_ending", "horizon")])
+    models, mcode = np.unique(part["model"].to_numpy().astype(str), return_inverse=True)
+    cube = np.full((n_items, models.size, window.levels.size), np.nan)
+    cube[icode, mcode] = window.values[idx]
+    y = np.empty(n_items)
+    y[icode] = part["observed"].to_numpy(dtype=float)
+    u = pool_pit(cube, window.levels, y, overshoot=overshoot)
+    return u[~np.isnan(u)]
+
+
+def _recalibration(
+    history: History,
+    members: np.ndarray,
+    quantity: str,
+    horizon: int,
+    settings: EnsembleSettings,
+) -> tuple[float, float, dict[str, Any], str | None]:
+    """Beta (a, b) of the recalibrated pool for one (quantity, horizon), its summary and note.
+
+    The rule of the module docstring: this horizon's PIT values if there are at least
+    ``MIN_PIT_HORIZON``, else all horizons' of the quantity; fewer than ``MIN_PIT``: a = b = 1.
+    """
+    u = np.empty(0)
+    scope = "all horizons"  # the widest set tried
+    if history.window is not None:
+        u = _window_pits(history.window, members, quantity, horizon, settings.overshoot)
+        if u.size >= MIN_PIT_HORIZON:
+            scope = "this horizon"
+        else:
+            u = _window_pits(history.window, members, quantity, None, settings.overshoot)
+    if u.size < MIN_PIT:
+        info = {"a": 1.0, "b": 1.0, "n_pit": int(u.size), "horizons": scope, "at_bound": False}
+        note = (
+            f"{quantity}, {horizon} week(s) ahead: {u.size} past forecast(s) of the equal pool "
+            f"can be checked against observations, {MIN_PIT} needed, so the recalibrated pool "
+            "is the equal pool"
+        )
+        return 1.0, 1.0, info, note
+    fit = fit_beta(u)
+    info = {
+        "a": round(float(fit.a), 6),
+        "b": round(float(fit.b), 6),
+        "n_pit": int(u.size),
+        "horizons": scope,
+        "at_bound": bool(fit.at_bound),
+    }
+    return float(fit.a), float(fit.b), info, None
+
+
 # --------------------------------------------------------------------------------------------
 # pooling
 
@@ -496,8 +606,15 @@ def _pool_all(
     out_mask: np.ndarray,
     lower: np.ndarray,
     upper: np.ndarray,
+    *,
+    out_levels: np.ndarray | None = None,
 ) -> np.ndarray:
-    """Linear-pool quantiles at each item's common levels (nan elsewhere)."""
+    """Linear-pool quantiles at each item's common levels (nan elsewhere).
+
+    ``out_levels`` (k,): the pool levels to invert at instead of ``levels`` (the recalibrated
+    pool's B^-1(tau)); the output stays on the grid of ``levels``.
+    """
+    targets = levels if out_levels is None else out_levels
     out = np.full(out_mask.shape, np.nan)
     patterns, inverse = np.unique(out_mask, axis=0, return_inverse=True)
     inverse = inverse.reshape(-1)
@@ -507,7 +624,7 @@ def _pool_all(
         sel = np.flatnonzero(inverse == p)
         cols = np.flatnonzero(pattern)
         out[np.ix_(sel, cols)] = linear_pool_quantiles(
-            values[sel], levels, weights[sel], levels[cols], lower=lower[sel], upper=upper[sel]
+            values[sel], levels, weights[sel], targets[cols], lower=lower[sel], upper=upper[sel]
         )
     return out
 
@@ -533,11 +650,12 @@ def build_ensemble(
     settings: EnsembleSettings | None = None,
     history: History | None = None,
 ) -> EnsembleResult:
-    """Build the three ensembles for the forecasts issued on ``issued``.
+    """Build the four ensembles (``METHODS``) for the forecasts issued on ``issued``.
 
     ``forecasts`` and ``observations`` are validated tables; only observations known on the
     issue date are used (see the module docstring). Cost: one scoring run of the window, one
-    pooling pass per candidate alpha over the window's items, and one over the targets.
+    pooling pass per candidate alpha over the window's items, one over the targets, and for
+    the recalibrated pool one CDF evaluation of the window's items and one more pooling pass.
     """
     settings = settings or EnsembleSettings()
     issued = pd.Timestamp(issued).as_unit("ns")  # the tables' resolution, whatever the caller's
@@ -577,6 +695,7 @@ def build_ensemble(
     weight_rows = []
     pool_w = np.zeros((n, m))
     summary_groups = []
+    recal_groups = []
     groups = (
         cube.items[["quantity", "horizon"]].drop_duplicates().sort_values(["quantity", "horizon"])
     )
@@ -618,6 +737,12 @@ def build_ensemble(
         eq = None
         if dm_data is not None:
             eq = _score_virtual_expert(*dm_data, np.ones(members.size), settings)
+        beta_a, beta_b, recal_info, recal_note = _recalibration(
+            history, members, quantity, int(horizon), settings
+        )
+        recal_groups.append((rows_idx, beta_a, beta_b))
+        if recal_note is not None:
+            notes.append(recal_note)
         summary_groups.append(
             {
                 "quantity": quantity,
@@ -634,18 +759,33 @@ def build_ensemble(
                 "equal_pool_information": None if eq is None else eq.information,
                 "members": [str(x) for x in members],
                 "rated": [str(x) for x in rated.loc[rated["rated"], "model"]],
+                "recalibration": recal_info,
             }
         )
 
     weighted = _pool_all(cube.values, cube.levels, pool_w, common, lower, upper)
     equal = _pool_all(cube.values, cube.levels, member_present.astype(float), common, lower, upper)
     qmed = np.where(common, quantile_median(cube.values), np.nan)
+    recal = equal.copy()
+    for rows_idx, beta_a, beta_b in recal_groups:
+        if beta_a == 1.0 and beta_b == 1.0:
+            continue
+        recal[rows_idx] = _pool_all(
+            cube.values[rows_idx],
+            cube.levels,
+            member_present[rows_idx].astype(float),
+            common[rows_idx],
+            lower[rows_idx],
+            upper[rows_idx],
+            out_levels=beta_levels(cube.levels, beta_a, beta_b),
+        )
     floor = ~cube.items["quantity"].isin(list(settings.signed)).to_numpy()[:, None]
     parts = []
     for method, vals in (
         ("weighted_pool", weighted),
         ("equal_pool", equal),
         ("quantile_median", qmed),
+        ("recalibrated_pool", recal),
     ):
         vals = np.where(floor & ~np.isnan(vals), np.maximum(vals, 0.0), vals)
         parts.append(_long(cube.items, method, issued, cube.levels, vals))
@@ -736,16 +876,30 @@ def with_baseline(
     name: str,
     horizons: Sequence[int] = (1, 2, 3, 4),
     signed: Collection[str] = (),
+    levels: Sequence[float] | None = None,
 ) -> tuple[pd.DataFrame, bool]:
     """Add persistence forecasts named ``name`` for each issue date, unless already present.
 
-    Each is built from the observations known on its issue date only. Returns the combined
-    table and whether the baseline was generated.
+    Each is built from the observations known on its issue date only. ``levels``: the
+    quantile levels of the baseline; by default, on each issue date, the sorted union of the
+    levels the members (every model but ``name``) give on that date, so the baseline is
+    scored on the levels it is compared on (Bracher et al. 2021, PLOS Comput Biol 17(2):
+    e1008618: WIS on different quantile sets are not comparable); the standard levels when
+    no member forecast is issued that date. Returns the combined table and whether the
+    baseline was generated.
     """
     from forebrief.baseline import persistence_forecast
+    from forebrief.schema import STANDARD_LEVELS
 
     if name in set(forecasts["model"].unique()):
         return forecasts, False
+    by_date: dict[pd.Timestamp, tuple[float, ...]] = {}
+    if levels is None:
+        members = forecasts.loc[forecasts["model"] != name, ["issued", "level"]]
+        union = members.assign(level=np.round(members["level"].to_numpy(dtype=float), 9))
+        union = union.drop_duplicates().sort_values(["issued", "level"], kind="stable")
+        by_date = {pd.Timestamp(d): tuple(float(v) for v in part)
+                   for d, part in union.groupby("issued", sort=False)["level"]}
     parts = [forecasts]
     for d in sorted(set(issue_dates)):
         known = known_on(observations, pd.Timestamp(d))
@@ -756,6 +910,8 @@ def with_baseline(
             known[["region", "quantity", "week_ending", "value"]],
             issued=pd.Timestamp(d),
             horizons=horizons,
+            levels=(tuple(levels) if levels is not None
+                    else by_date.get(pd.Timestamp(d), STANDARD_LEVELS)),
             name=name,
             nonnegative=floors,
         )

@@ -20,12 +20,12 @@ from typing import Any
 
 import numpy as np
 import pandas as pd
-from scipy.stats import binomtest
 
 from forebrief.config import BriefingConfig
 from forebrief.distributions import pool_cdf
-from forebrief.schema import cm_probabilities
+from forebrief.schema import CM_LEVELS, cm_probabilities
 from forebrief.scoring.classical import calibration_score
+from forebrief.scoring.verdict import evidence_units, rate_record
 
 __all__ = [
     "CAUTIONS",
@@ -38,7 +38,7 @@ __all__ = [
     "verdict_from_bins",
 ]
 
-#: The standard cautions printed in every briefing (sources in CONVENTIONS section 4).
+#: The standard cautions printed in every briefing (sources in docs/conventions.md §4).
 CAUTIONS: tuple[str, ...] = (
     "Forecasts more than one or two weeks ahead are much less reliable than near-term ones; "
     "treat the three- and four-week outlook as a rough guide only.",
@@ -101,7 +101,7 @@ def chance_text(p: float) -> str:
         return "about 1 in 10" if p >= 0.075 else "about 1 in 20"
     if p > 0.85:
         return "about 9 in 10" if p <= 0.925 else "about 19 in 20"
-    return f"about {round(p * 10)} in 10"
+    return f"about {_tenths(p)} in 10"  # half up: 0.25 -> 3 in 10, not round()'s 2
 
 
 def percent_text(p: float) -> str:
@@ -169,11 +169,27 @@ class OutlookRow:
     dominant_model: str | None
     n_members: int
     baseline_median: float | None
+    #: expected complete count of the last week once late reports are in (None if complete)
+    last_value_nowcast: float | None = None
+    last_value_nowcast_range90: tuple[float, float] | None = None
+    last_value_nowcast_text: str | None = None
+    last_value_nowcast_range90_text: str | None = None
+    #: the value ``direction`` and ``p_above_last`` compare with: the nowcast, else the report
+    reference_text: str = "n/a"
+    method: str = "weighted_pool"
+    method_label: str = ""
 
 
 @dataclass(frozen=True)
 class ModelVerdict:
-    """A plain verdict on one model for one quantity, with the numbers behind it."""
+    """A plain verdict on one model for one quantity, with the numbers behind it.
+
+    ``n_items`` and ``bins`` count the scored forecasts used as evidence (every horizon shown;
+    the total's dropped where its regions were rated); ``calibration`` is the verdict's
+    calibration test p-value; ``outside_90``, ``expected_outside_90`` and ``below_median`` are
+    the target-week counts the explanation cites (forecasts ``pattern_horizon`` weeks ahead).
+    See :mod:`forebrief.scoring.verdict`.
+    """
 
     model: str
     quantity: str
@@ -191,6 +207,12 @@ class ModelVerdict:
     expected_outside_90: float
     below_median: int
     bins: tuple[int, ...]
+    #: target weeks of evidence (region and week; the total only where no region was rated)
+    n_evidence: int = 0
+    #: what the calibration test counts: n_evidence / the design effect of regions moving together
+    n_effective: float = 0.0
+    #: the horizon of the forecasts the explanation and the pattern tests count
+    pattern_horizon: int = 0
 
 
 @dataclass(frozen=True)
@@ -243,6 +265,10 @@ class BriefingFacts:
     changes: Mapping[str, Any]
     data_notes: Mapping[str, Any]
     summary: Mapping[str, Any] = field(default_factory=dict)
+    #: one entry per quantity: the combination the outlook uses, why, and the figures
+    headline: tuple[Mapping[str, Any], ...] = ()
+    #: target weeks not yet scored because they may still be revised
+    settle: Mapping[str, Any] = field(default_factory=dict)
     cautions: tuple[str, ...] = CAUTIONS
     methods: Mapping[str, Any] = field(default_factory=dict)
     history: Mapping[str, Any] = field(default_factory=dict)
@@ -261,54 +287,26 @@ VERDICTS = ("reliable", "overconfident", "underconfident", "biased high", "biase
 
 def verdict_from_bins(bins: Sequence[int], *, passes: bool, rated: bool,
                       test_level: float = 0.05) -> tuple[str, str]:
-    """A plain verdict from a model's calibration test and its Classical Model bin counts.
+    """A plain verdict from pooled Classical Model bin counts and the caller's calibration test.
 
-    Bins are the six interquantile bins of the 5/25/50/75/95% quantiles (expected shares
-    5/20/25/25/20/5%). Rules (our design, each a one-sided or two-sided binomial test at
-    ``test_level``, common practice, no source):
-
-    - not yet rated: too little history;
-    - reliable: passes the calibration cutoff;
-    - biased high / low: observations fall below / above its median significantly more
-      often than half the time (the forecasts sit too high / too low);
-    - overconfident: more observations than the expected 10% fall outside its 90% range;
-    - underconfident: fewer than 10% fall outside its 90% range, or more than half inside the
-      50% range (its ranges are wider than they need to be);
-    - when several patterns are significant, the clearest (smallest p-value) is named;
-    - unreliable: fails the test without one of these clear patterns.
+    For counts that are already independent evidence (one observation per target week): each
+    count becomes its own target week and the rules of :mod:`forebrief.scoring.verdict` name
+    the pattern (a bias before overconfidence when the misses fall on one side), with
+    ``passes`` deciding "reliable". Counts pooled over horizons or over a total and its
+    regions are not independent; the briefing rates per-item bins with
+    :func:`forebrief.scoring.verdict.rate_record` instead.
     """
-    b = np.asarray(bins, dtype=int)
-    n = int(b.sum())
-    if not rated or n == 0:
-        return "not yet rated", "too little history to judge yet"
-    outside = int(b[0] + b[-1])
-    below = int(b[: b.size // 2].sum())
-    central = int(b[b.size // 2 - 1 : b.size // 2 + 1].sum())
-    if passes:
-        return "reliable", (f"its ranges held about as often as they should: {outside} of {n} "
-                            f"observations fell outside its 90% range (about {0.1 * n:.0f} "
-                            "expected)")
-    # the clearest of the three patterns (smallest p-value) names the failure
-    p_bias = binomtest(below, n, 0.5).pvalue
-    p_over = binomtest(outside, n, 0.1, alternative="greater").pvalue
-    p_under = min(binomtest(outside, n, 0.1, alternative="less").pvalue,
-                  binomtest(central, n, 0.5, alternative="greater").pvalue)
-    best = min((p_bias, 0), (p_over, 1), (p_under, 2))
-    if best[0] < test_level:
-        if best[1] == 0 and below > n - below:
-            return "biased high", (f"its forecasts sat too high: {below} of {n} observations "
-                                   "fell below its median")
-        if best[1] == 0:
-            return "biased low", (f"its forecasts sat too low: {n - below} of {n} "
-                                  "observations fell above its median")
-        if best[1] == 1:
-            return "overconfident", (f"its ranges were too narrow: {outside} of {n} "
-                                     "observations fell outside its 90% range (about "
-                                     f"{0.1 * n:.0f} expected)")
-        return "underconfident", (f"its ranges were wider than needed: {central} of {n} "
-                                  "observations fell inside its 50% range (about "
-                                  f"{0.5 * n:.0f} expected)")
-    return "unreliable", "its ranges did not hold as often as they should, with no single pattern"
+    b = np.asarray(bins, dtype=np.int64)
+    p = cm_probabilities(CM_LEVELS)
+    if b.shape != p.shape:
+        raise ValueError(f"verdict_from_bins needs the {p.size} bin counts of the "
+                         f"5/25/50/75/95% quantiles; got {b.size}")
+    items = np.repeat(np.arange(b.size), b)
+    codes = np.arange(items.size)
+    # horizon 0: not known, so the explanation names none
+    v = rate_record(items, target=codes, week=codes, horizon=np.zeros(items.size, dtype=np.int64),
+                    probabilities=p, rated=rated, test_level=test_level, passes=passes)
+    return v.verdict, v.explanation
 
 
 # --------------------------------------------------------------------------------------------
@@ -344,21 +342,81 @@ def _pct_off(value: float, centre: float, side: str) -> str:
     return f"{abs(value - centre) / centre * 100:.0f}% {side}"
 
 
+def _nowcast_map(nowcast: pd.DataFrame | None) -> dict[tuple[str, str, pd.Timestamp], int]:
+    """Row position of each incomplete week's nowcast, by (region, quantity, week_ending)."""
+    if nowcast is None or nowcast.empty:
+        return {}
+    out = {}
+    for pos, r in enumerate(nowcast.itertuples(index=False)):
+        if not bool(r.complete) and math.isfinite(float(r.nowcast)):
+            out[(str(r.region), str(r.quantity), pd.Timestamp(r.week_ending))] = pos
+    return out
+
+
+#: Levels at which the nowcast distribution is sampled to integrate P(next week > last week):
+#: the midpoints of 40 equal-probability slices (midpoint rule; common practice, no source).
+_NOWCAST_GRID = (np.arange(40) + 0.5) / 40
+
+#: "about the same": the forecast median within 5% of last week's (nowcast) value (our
+#: convention; common practice, no source). Outside that band the direction is up or down.
+DIRECTION_BAND = 0.05
+
+
+def direction_of(median: float, reference: float) -> str:
+    """'up', 'down' or 'about the same' (within :data:`DIRECTION_BAND` of the reference)."""
+    if not (math.isfinite(median) and math.isfinite(reference)):
+        return "unknown"
+    change = median - reference
+    if change == 0 or (reference > 0 and abs(change) / reference < DIRECTION_BAND):
+        return "about the same"
+    return "up" if change > 0 else "down"
+
+
+def _method_cdf(ensemble: Any, method: str, rows: pd.DataFrame, pool_idx: np.ndarray,
+                x: np.ndarray) -> np.ndarray:
+    """CDF of ``method``'s forecast for each row at the points ``x`` (rows, p).
+
+    The reliability-weighted pool uses its exact mixture of the members; every other
+    combination uses its own quantiles as a piecewise-linear distribution with the members'
+    support (the same construction, one member with weight 1).
+    """
+    pool = ensemble.pool
+    if len(rows) == 0:
+        return np.zeros((0, x.shape[1]))
+    if method == "weighted_pool":
+        return pool_cdf(x, pool.values[pool_idx], pool.levels, pool.weights[pool_idx],
+                        pool.lower[pool_idx], pool.upper[pool_idx])
+    levels = np.array(sorted(c for c in rows.columns if isinstance(c, float)))
+    q = rows[list(levels)].to_numpy(dtype=float)[:, None, :]
+    q = np.maximum.accumulate(np.nan_to_num(q, nan=-np.inf), axis=2)  # guard rounding
+    q = np.where(np.isfinite(q), q, np.nan)
+    lower = np.minimum(pool.lower[pool_idx], np.nanmin(q[:, 0, :], axis=1))
+    upper = np.maximum(pool.upper[pool_idx], np.nanmax(q[:, 0, :], axis=1))
+    return pool_cdf(x, q, levels, np.ones((len(rows), 1)), lower, upper)
+
+
 def _outlook(cfg: BriefingConfig, ensemble: Any, last_obs: pd.DataFrame,
              provisional_weeks: set[tuple[str, str, pd.Timestamp]],
-             baseline_medians: Mapping[tuple[str, str, pd.Timestamp], float]) -> list[OutlookRow]:
+             baseline_medians: Mapping[tuple[str, str, pd.Timestamp], float],
+             *, nowcast: pd.DataFrame | None = None,
+             methods: Mapping[str, str] | None = None) -> list[OutlookRow]:
+    """One row per region, quantity and horizon, from each quantity's headline combination."""
+    from forebrief.nowcast import nowcast_quantiles
+
+    methods = dict(methods or {})
     e = ensemble.ensemble
-    wp = e.loc[e["method"] == "weighted_pool"]
-    wide = wp.pivot_table(index=["region", "quantity", "week_ending", "horizon"],
-                          columns="level", values="value", aggfunc="first")
+    chosen = e["quantity"].map(lambda q: methods.get(q, "weighted_pool"))
+    sel = e.loc[e["method"] == chosen]
+    wide = sel.pivot_table(index=["region", "quantity", "week_ending", "horizon"],
+                           columns="level", values="value", aggfunc="first")
     need = [0.05, 0.25, 0.5, 0.75, 0.95]
     cols = {t: next((c for c in wide.columns if abs(c - t) < 1e-6), None) for t in need}
     if any(v is None for v in cols.values()):
         return []
+    wide.columns = [float(c) for c in wide.columns]
     wide = wide.reset_index()
-    wide = wide.loc[wide["horizon"].isin(cfg.horizons)]
+    wide = wide.loc[wide["horizon"].isin(cfg.horizons)].reset_index(drop=True)
     pool = ensemble.pool
-    # exceedance probabilities from the pooled CDF (exact mixture), one evaluation per item
     key = {tuple(r): i for i, r in enumerate(
         pool.items[["region", "quantity", "week_ending", "horizon"]].itertuples(
             index=False, name=None))}
@@ -366,34 +424,65 @@ def _outlook(cfg: BriefingConfig, ensemble: Any, last_obs: pd.DataFrame,
                     for r in wide.itertuples(index=False)], dtype=np.int64)
     last_map = {(r.region, r.quantity): (float(r.value), pd.Timestamp(r.week_ending))
                 for r in last_obs.itertuples(index=False)}
-    last_vals = np.array([last_map.get((r.region, r.quantity), (np.nan, None))[0]
-                          for r in wide.itertuples(index=False)])
+    now_pos = _nowcast_map(nowcast)
+    now_q = (nowcast_quantiles(nowcast, _NOWCAST_GRID) if now_pos and nowcast is not None
+             else np.zeros((0, _NOWCAST_GRID.size)))
+    n = len(wide)
+    last_vals = np.full(n, np.nan)
+    grid = np.zeros((n, _NOWCAST_GRID.size))
+    has_now = np.zeros(n, dtype=bool)
+    now_rows: list[int | None] = []
+    for j, r in enumerate(wide.itertuples(index=False)):
+        last, week = last_map.get((r.region, r.quantity), (math.nan, None))
+        last_vals[j] = last
+        pos = now_pos.get((r.region, r.quantity, week)) if week is not None else None
+        now_rows.append(pos)
+        if pos is not None:
+            grid[j] = now_q[pos]
+            has_now[j] = np.isfinite(now_q[pos]).all()
     thr = [cfg.threshold(r.region, r.quantity) for r in wide.itertuples(index=False)]
     thr_vals = np.array([t.value if t else np.nan for t in thr])
-    x = np.column_stack([np.nan_to_num(last_vals, nan=0.0), np.nan_to_num(thr_vals, nan=0.0)])
-    if idx.size:
-        f = pool_cdf(x, pool.values[idx], pool.levels, pool.weights[idx], pool.lower[idx],
-                     pool.upper[idx])
-    else:
-        f = np.zeros((0, 2))
+    f = np.zeros((n, 2))
+    f_grid = np.zeros((n, _NOWCAST_GRID.size))
+    method_of = wide["quantity"].map(lambda q: methods.get(q, "weighted_pool")).to_numpy()
+    for method in sorted(set(method_of)):
+        m_rows = np.flatnonzero(method_of == method)
+        x = np.column_stack([np.nan_to_num(last_vals[m_rows], nan=0.0),
+                             np.nan_to_num(thr_vals[m_rows], nan=0.0)])
+        part = wide.iloc[m_rows]
+        f[m_rows] = _method_cdf(ensemble, method, part, idx[m_rows], x)
+        if has_now[m_rows].any():
+            f_grid[m_rows] = _method_cdf(ensemble, method, part, idx[m_rows],
+                                         np.nan_to_num(grid[m_rows], nan=0.0))
     members = ~np.isnan(pool.values).all(axis=2)
     rob = ensemble.robustness
     rows = []
     for j, r in enumerate(wide.itertuples(index=False)):
+        method = str(method_of[j])
         q = {t: float(wide.iloc[j][cols[t]]) for t in need}
         med = round_count(q[0.5])
         lo50, hi50 = round_count(q[0.25]), round_count(q[0.75])
         lo90, hi90 = round_count(q[0.05]), round_count(q[0.95])
         last, last_week = last_map.get((r.region, r.quantity), (math.nan, None))
-        change = med - round_count(last) if math.isfinite(last) else math.nan
-        pct = (change / round_count(last) * 100) if math.isfinite(last) and last > 0 else None
-        if not math.isfinite(change):
-            direction = "unknown"
-        elif pct is not None and abs(pct) < 5:
-            direction = "about the same"
+        pos = now_rows[j]
+        now_v: float | None = None
+        now_lo = now_hi = math.nan
+        if pos is not None and nowcast is not None:
+            nr = nowcast.iloc[pos]
+            now_v = round_count(float(nr["nowcast"]))
+            now_lo = round_count(float(nr["nowcast_low90"]))
+            now_hi = round_count(float(nr["nowcast_high90"]))
+        reference = now_v if now_v is not None else (round_count(last) if math.isfinite(last)
+                                                     else math.nan)
+        change = med - reference if math.isfinite(reference) else math.nan
+        pct = (change / reference * 100) if math.isfinite(reference) and reference > 0 \
+            else None
+        direction = direction_of(med, reference)
+        if has_now[j]:
+            # P(next week > last week's complete count): average over the nowcast distribution
+            p_last = float(np.mean(1.0 - f_grid[j]))
         else:
-            direction = "up" if change > 0 else ("down" if change < 0 else "about the same")
-        p_last = 1.0 - float(f[j, 0]) if math.isfinite(last) else math.nan
+            p_last = 1.0 - float(f[j, 0]) if math.isfinite(last) else math.nan
         t = thr[j]
         p_thr = (1.0 - float(f[j, 1])) if t is not None else None
         info = cfg.quantity_info(r.quantity)
@@ -410,14 +499,16 @@ def _outlook(cfg: BriefingConfig, ensemble: Any, last_obs: pd.DataFrame,
         ratio = spread / width if width > 0 else None
         agreement = ("the models broadly agree" if ratio is None or ratio <= 0.5 else
                      "the models disagree" if ratio > 1.0 else "the models differ somewhat")
-        sub = rob.loc[(rob["region"] == r.region) & (rob["quantity"] == r.quantity)
-                      & (rob["week_ending"] == r.week_ending) & (rob["horizon"] == r.horizon)]
         dominant = None
-        if not sub.empty:
-            top = sub.sort_values("weight", ascending=False).iloc[0]
-            shift = abs(top["median_change"]) / q[0.5] if q[0.5] > 0 else 0.0
-            if top["weight"] >= 0.5 and shift >= 0.10:
-                dominant = str(top["left_out"])
+        if method == "weighted_pool":
+            sub = rob.loc[(rob["region"] == r.region) & (rob["quantity"] == r.quantity)
+                          & (rob["week_ending"] == r.week_ending)
+                          & (rob["horizon"] == r.horizon)]
+            if not sub.empty:
+                top = sub.sort_values("weight", ascending=False).iloc[0]
+                shift = abs(top["median_change"]) / q[0.5] if q[0.5] > 0 else 0.0
+                if top["weight"] >= 0.5 and shift >= 0.10:
+                    dominant = str(top["left_out"])
         rows.append(OutlookRow(
             region=r.region, region_name=cfg.region_name(r.region),
             is_total=(r.region == cfg.total_region), quantity=r.quantity,
@@ -431,9 +522,10 @@ def _outlook(cfg: BriefingConfig, ensemble: Any, last_obs: pd.DataFrame,
             below_text=_pct_off(lo90, med, "below"), above_text=_pct_off(hi90, med, "above"),
             last_value=round_count(last) if math.isfinite(last) else math.nan,
             last_value_text=format_count(last), last_week=_date(last_week),
-            last_week_text=date_text(last_week), last_provisional=(r.region, r.quantity, last_week) in provisional_weeks,
-            change=change, change_text=format_count(abs(change)) if math.isfinite(change) else
-            "n/a",
+            last_week_text=date_text(last_week),
+            last_provisional=(r.region, r.quantity, last_week) in provisional_weeks,
+            change=change, change_text=format_count(abs(change)) if math.isfinite(change)
+            else "n/a",
             change_percent=None if pct is None else round(pct),
             direction=direction, p_above_last=round_probability(p_last),
             p_above_last_text=chance_text(p_last),
@@ -452,6 +544,13 @@ def _outlook(cfg: BriefingConfig, ensemble: Any, last_obs: pd.DataFrame,
             member_spread_ratio=None if ratio is None else round(ratio, 2),
             agreement=agreement, dominant_model=dominant, n_members=int(present.sum()),
             baseline_median=baseline_medians.get((r.region, r.quantity, r.week_ending)),
+            last_value_nowcast=now_v,
+            last_value_nowcast_range90=None if now_v is None else (now_lo, now_hi),
+            last_value_nowcast_text=None if now_v is None else format_count(now_v),
+            last_value_nowcast_range90_text=None if now_v is None else
+            _range_text(now_lo, now_hi),
+            reference_text=format_count(reference),
+            method=method, method_label=METHOD_LABELS.get(method, method),
         ))
     rows.sort(key=lambda o: (not o.is_total, o.quantity, o.region_name, o.horizon))
     return rows
@@ -462,25 +561,46 @@ def _level_col(levels: np.ndarray, t: float) -> int:
 
 
 def _verdicts(cfg: BriefingConfig, scores: pd.DataFrame, weights: pd.DataFrame,
-              relative: pd.DataFrame, *, test_level: float) -> list[ModelVerdict]:
-    """One verdict per (model, quantity), from bin counts pooled over the horizons shown."""
-    if scores.empty:
+              relative: pd.DataFrame, *, test_level: float,
+              items: pd.DataFrame | None) -> list[ModelVerdict]:
+    """One verdict per (model, quantity), from the per-item bins of the horizons shown.
+
+    ``items`` is the scores' ``by_item`` table. Evidence is counted by
+    :func:`forebrief.scoring.verdict.rate_record`: one unit per region and target week (the
+    total's items dropped for weeks in which the model's regions were scored), regions of a
+    week clustered. The history rule is unchanged: a model is rated when its scored items over
+    the horizons shown (its total's included) number at least ``cfg.min_items`` per horizon
+    of ``scores``. ``cfg.power``, the calibration power of the weights, is not applied: the
+    verdict counts its evidence itself.
+    """
+    if scores.empty or items is None or items.empty:
         return []
     s = scores.loc[scores["horizon"].isin(cfg.horizons)]
     bins_cols = [c for c in s.columns if c.startswith("bin_")]
+    scored = items.loc[items["horizon"].isin(cfg.horizons) & items["bin"].notna()]
+    by_record = dict(iter(scored.groupby(["model", "quantity"], sort=False)))
     p = cm_probabilities(cfg.levels)
     out = []
     members = set(weights["model"])
     for (model, quantity), part in s.groupby(["model", "quantity"], sort=True):
         if model not in members:
             continue
-        counts = part[bins_cols].sum().to_numpy(dtype=int)
-        n = int(counts.sum())
-        cal = float(calibration_score(counts, p, power=cfg.power)) if n else math.nan
-        rated = n >= cfg.min_items * len(part)
-        passes = bool(math.isfinite(cal) and cal >= test_level)
-        verdict, why = verdict_from_bins(counts, passes=passes, rated=rated,
-                                         test_level=test_level)
+        n_scored = int(part[bins_cols].to_numpy(dtype=float).sum())
+        rated = n_scored >= cfg.min_items * len(part)
+        rows = by_record.get((model, quantity), scored.iloc[:0])
+        region, region_names = pd.factorize(rows["region"])
+        week, _ = pd.factorize(rows["week_ending"])
+        total = (int(np.flatnonzero(region_names == cfg.total_region)[0])
+                 if cfg.total_region is not None and cfg.total_region in set(region_names)
+                 else None)
+        units = evidence_units(region.astype(np.int64), week.astype(np.int64), total=total)
+        keep = units.keep
+        bins = rows["bin"].to_numpy(dtype=np.int64)[keep]
+        v = rate_record(bins, target=units.target[keep], week=units.week[keep],
+                        horizon=rows["horizon"].to_numpy(dtype=np.int64)[keep],
+                        probabilities=p, rated=rated, test_level=test_level)
+        counts = np.bincount(bins, minlength=p.size)
+        cal = v.calibration_p
         w = weights.loc[(weights["model"] == model) & (weights["quantity"] == quantity)
                         & (weights["horizon"] == min(cfg.horizons)), "weight"]
         weight = float(w.iloc[0]) if len(w) else 0.0
@@ -490,15 +610,17 @@ def _verdicts(cfg: BriefingConfig, scores: pd.DataFrame, weights: pd.DataFrame,
         info = part["information"].mean()
         out.append(ModelVerdict(
             model=str(model), quantity=str(quantity),
-            quantity_name=cfg.quantity_info(quantity).name, verdict=verdict, explanation=why,
-            n_items=n, calibration=None if not math.isfinite(cal) else float(f"{cal:.3g}"),
+            quantity_name=cfg.quantity_info(quantity).name, verdict=v.verdict,
+            explanation=v.explanation, n_items=v.n_items,
+            calibration=None if not math.isfinite(cal) else float(f"{cal:.3g}"),
             information=None if pd.isna(info) else round(float(info), 2),
             weight=round(weight, 2), weight_text=f"{weight:.2f}",
             relative_wis=None if rel_v is None else round(rel_v, 2),
             relative_wis_text="n/a" if rel_v is None else f"{rel_v:.2f}",
-            outside_90=int(counts[0] + counts[-1]), expected_outside_90=round(0.1 * n, 1),
-            below_median=int(counts[: counts.size // 2].sum()),
-            bins=tuple(int(c) for c in counts),
+            outside_90=v.outside, expected_outside_90=round(v.expected_outside, 1),
+            below_median=v.below, bins=tuple(int(c) for c in counts),
+            n_evidence=v.n_evidence, n_effective=round(v.n_effective, 1),
+            pattern_horizon=v.pattern_horizon,
         ))
     order = {v: i for i, v in enumerate(VERDICTS)}
     out.sort(key=lambda v: (v.quantity, order[v.verdict], -v.weight, v.model))
@@ -509,11 +631,14 @@ METHOD_LABELS = {
     "weighted_pool": "combined forecast (reliability-weighted)",
     "equal_pool": "combined forecast (equal weights)",
     "quantile_median": "median of the models",
+    "recalibrated_pool": "combined forecast (recalibrated)",
 }
 
 
-def _track(cfg: BriefingConfig, backtest: Any) -> tuple[list[TrackRow], list[dict[str, Any]],
-                                                        list[dict[str, Any]]]:
+def _track(cfg: BriefingConfig, backtest: Any, methods: Mapping[str, str] | None = None,
+           ) -> tuple[list[TrackRow], list[dict[str, Any]], list[dict[str, Any]]]:
+    """The back-test's record per method and horizon; the headline method's total and regions."""
+    methods = dict(methods or {})
     if backtest is None:
         return [], [], []
     s = backtest.scores
@@ -548,9 +673,9 @@ def _track(cfg: BriefingConfig, backtest: Any) -> tuple[list[TrackRow], list[dic
     # the jurisdiction total, week by week, for the weighted pool one week ahead
     total_rows: list[dict[str, Any]] = []
     h1 = min(cfg.horizons)
+    head = items["quantity"].map(lambda q: methods.get(q, "weighted_pool"))
     if cfg.total_region:
-        sub = items.loc[(items["model"] == "weighted_pool") & (items["region"] ==
-                                                              cfg.total_region)
+        sub = items.loc[(items["model"] == head) & (items["region"] == cfg.total_region)
                         & (items["horizon"] == h1)]
         for q, part in sub.groupby("quantity", sort=True):
             n = int(part["in_90"].notna().sum())
@@ -562,7 +687,7 @@ def _track(cfg: BriefingConfig, backtest: Any) -> tuple[list[TrackRow], list[dic
             })
     # calibration of the weighted pool by region (bins pooled over the horizons shown)
     by_region: list[dict[str, Any]] = []
-    wp = items.loc[(items["model"] == "weighted_pool") & items["horizon"].isin(cfg.horizons)
+    wp = items.loc[(items["model"] == head) & items["horizon"].isin(cfg.horizons)
                    & items["bin"].notna()]
     p = cm_probabilities(cfg.levels)
     for (q, region), part in wp.groupby(["quantity", "region"], sort=True):
@@ -594,6 +719,9 @@ def build_facts(
     previous: Mapping[str, Any] | None,
     revisions: pd.DataFrame,
     test_level: float = 0.05,
+    nowcast: pd.DataFrame | None = None,
+    settle: Mapping[str, Any] | None = None,
+    headline: Sequence[Mapping[str, Any]] = (),
 ) -> BriefingFacts:
     """Compute every fact of the briefing for issue date ``issued``.
 
@@ -619,7 +747,11 @@ def build_facts(
                          & (np.abs(forecasts["level"] - 0.5) < 1e-6)]
     baseline_medians = {(r.region, r.quantity, r.week_ending): round_count(float(r.value))
                         for r in base.itertuples(index=False)}
-    outlook = _outlook(cfg, ensemble, last_obs, provisional, baseline_medians)
+    available = set(ensemble.ensemble["method"].unique())
+    methods = {str(h["quantity"]): str(h["method"]) for h in headline
+               if h.get("method") in available}
+    outlook = _outlook(cfg, ensemble, last_obs, provisional, baseline_medians,
+                       nowcast=nowcast, methods=methods)
     total_available = bool(cfg.total_region) and any(o.is_total for o in outlook)
     if total_available:
         total_note = (f"The jurisdiction-wide figures are the models' own forecasts for "
@@ -630,8 +762,9 @@ def build_facts(
                       "whole jurisdiction (or it has no forecasts), and regional ranges cannot "
                       "simply be added up.")
     by_model = scores.by_model if scores is not None else pd.DataFrame()
-    verdicts = _verdicts(cfg, by_model, ensemble.weights, by_model, test_level=test_level)
-    track, track_total, cal_region = _track(cfg, backtest)
+    verdicts = _verdicts(cfg, by_model, ensemble.weights, by_model, test_level=test_level,
+                         items=scores.by_item if scores is not None else None)
+    track, track_total, cal_region = _track(cfg, backtest, methods)
     def _sig(x: Any) -> float | None:
         return None if x is None or pd.isna(x) else float(f"{float(x):.4g}")
 
@@ -652,8 +785,10 @@ def build_facts(
     changes = _changes(outlook, verdicts, weights, previous, cfg)
     data_notes = _data_notes(cfg, issued, forecasts, excluded, revisions, known)
     data_as_of = _date(known["week_ending"].max()) if not known.empty else ""
-    summary = _summary(cfg, outlook, verdicts, track)
-    history = _history(cfg, known, provisional, weeks=max(cfg.window, 16))
+    summary = _summary(cfg, outlook, verdicts, track, methods)
+    history = _history(cfg, known, provisional, weeks=max(cfg.window, 16), nowcast=nowcast)
+    settle_facts = _settle_facts(settle, issued, known)
+    headline_facts = tuple(_headline_entry(cfg, h, track) for h in headline)
     return BriefingFacts(
         title=cfg.title, audience=cfg.audience, jurisdiction=cfg.jurisdiction,
         contact=cfg.contact, issued=_date(issued), issued_text=date_text(issued),
@@ -673,15 +808,31 @@ def build_facts(
         track_weeks=len(backtest.issue_dates) if backtest is not None else 0,
         track_total=tuple(track_total), calibration_by_region=tuple(cal_region),
         weights=tuple(weights), alpha=tuple(alpha), changes=changes, data_notes=data_notes,
-        summary=summary, history=history,
+        summary=summary, history=history, headline=headline_facts, settle=settle_facts,
         methods={
             "window_weeks": cfg.window, "alpha": cfg.alpha, "levels": list(cfg.levels),
             "levels_text": _levels_text(cfg.levels),
             "overshoot": cfg.overshoot, "min_items": cfg.min_items, "power": cfg.power,
             "background": cfg.background, "baseline": cfg.baseline,
             "verdict_test_level": test_level,
+            "headline_rule_text": HEADLINE_RULE_TEXT,
+            "nowcast_text": NOWCAST_TEXT,
         },
     )
+
+
+#: The headline rule in plain words (forebrief.compare.choose_headline; Diebold & Mariano
+#: 1995 with the Harvey, Leybourne & Newbold 1997 correction).
+HEADLINE_RULE_TEXT = (
+    "The headline figures come from the median of the models' quantiles unless another "
+    "combination had a lower error over the trailing back-test one and two weeks ahead, on at "
+    "least 8 settled issue dates, with a one-sided Diebold-Mariano test (Diebold and Mariano "
+    "1995) giving p < 0.10.")
+#: The nowcast and the settled-data rule in plain words (forebrief.nowcast).
+NOWCAST_TEXT = (
+    "Provisional weeks are completed with a chain-ladder nowcast (Mack 1993) from how "
+    "complete past weeks were at the same reporting delay, and models are rated only on weeks "
+    "that late reports no longer change.")
 
 
 def _changes(outlook: Sequence[OutlookRow], verdicts: Sequence[ModelVerdict],
@@ -775,8 +926,10 @@ def _data_notes(cfg: BriefingConfig, issued: pd.Timestamp, forecasts: pd.DataFra
 
 
 def _summary(cfg: BriefingConfig, outlook: Sequence[OutlookRow],
-             verdicts: Sequence[ModelVerdict], track: Sequence[TrackRow]) -> dict[str, Any]:
+             verdicts: Sequence[ModelVerdict], track: Sequence[TrackRow],
+             methods: Mapping[str, str] | None = None) -> dict[str, Any]:
     """The few facts the headline needs, chosen and counted here (not in the narrative)."""
+    methods = dict(methods or {})
     quantities = [q for q in cfg.quantities if any(o.quantity == q for o in outlook)] or \
         sorted({o.quantity for o in outlook})
     lead_q = quantities[0] if quantities else None
@@ -786,8 +939,11 @@ def _summary(cfg: BriefingConfig, outlook: Sequence[OutlookRow],
     focus = total
     if focus is None and lead:
         focus = max(lead, key=lambda o: o.median)
+    # the alert-line sentence looks one and two weeks ahead only (beyond that the forecasts
+    # are too uncertain to headline) and names the week
+    near = sorted(cfg.horizons)[:2]
     risk = [o for o in outlook if o.quantity == lead_q and o.p_above_threshold is not None
-            and not o.is_total]
+            and not o.is_total and o.horizon in near]
     top_risk = max(risk, key=lambda o: (o.p_above_threshold or 0.0, -o.horizon), default=None)
     per_q = {}
     for q in quantities:
@@ -799,14 +955,21 @@ def _summary(cfg: BriefingConfig, outlook: Sequence[OutlookRow],
             "n_not_rated": sum(v.verdict == "not yet rated" for v in vs),
         }
     track_h1 = {}
+    worse: dict[str, list[int]] = {}
     for q in quantities:
+        method = methods.get(q, "weighted_pool")
         rows = {t.method: t for t in track if t.quantity == q and t.horizon == h1}
-        wp = rows.get("weighted_pool")
+        wp = rows.get(method)
         track_h1[q] = None if wp is None else {
+            "method": method, "label": wp.label,
             "relative_wis": wp.relative_wis, "vs_baseline_text": wp.vs_baseline_text,
             "beats_baseline": wp.relative_wis is not None and wp.relative_wis < 1,
             "in_90_text": wp.in_90_text, "in_50_text": wp.in_50_text,
+            "coverage_warning": coverage_warning(wp.in_50, wp.in_90, wp.n_items),
         }
+        worse[q] = sorted(t.horizon for t in track
+                          if t.quantity == q and t.method == method
+                          and t.relative_wis is not None and t.relative_wis > 1)
     dominance: dict[tuple[str, str], list[str]] = {}
     for o in outlook:
         if o.dominant_model and o.horizon == h1:
@@ -827,6 +990,7 @@ def _summary(cfg: BriefingConfig, outlook: Sequence[OutlookRow],
                                                    "horizon": top_risk.horizon},
         "models": per_q,
         "track": track_h1,
+        "worse_than_baseline_horizons": worse,
         "dominant": dominant,
         "n_regions_up": len(up),
         "n_regions_down": len(down),
@@ -834,12 +998,85 @@ def _summary(cfg: BriefingConfig, outlook: Sequence[OutlookRow],
     }
 
 
+def coverage_warning(in_50: int, in_90: int, n: int) -> str | None:
+    """A plain warning when recent 50% or 90% coverage fell outside the binomial 95% band.
+
+    The band is the central 95% of Binomial(n, 0.5) or Binomial(n, 0.9) counts (Gneiting,
+    Balabdaoui & Raftery 2007 for calibration as coverage; the band is common practice, no
+    source). Returns e.g. "its 9 in 10 ranges held 7 in 10 times lately", or None.
+    """
+    from scipy.stats import binom
+
+    if n <= 0:
+        return None
+    parts = []
+    lo, hi = binom.interval(0.95, n, 0.9)
+    if not lo <= in_90 <= hi:
+        parts.append(f"its 9 in 10 ranges held {_tenths(in_90 / n)} in 10 times lately")
+    lo, hi = binom.interval(0.95, n, 0.5)
+    if not lo <= in_50 <= hi:
+        parts.append(f"its even-chance ranges held {_tenths(in_50 / n)} in 10 times lately")
+    return " and ".join(parts) if parts else None
+
+
+def _tenths(share: float) -> int:
+    """A share in tenths, half up (0.25 -> 3)."""
+    return math.floor(share * 10 + 0.5 + 1e-9)
+
+
+def _settle_facts(settle: Mapping[str, Any] | None, issued: pd.Timestamp,
+                  known: pd.DataFrame) -> dict[str, Any]:
+    """How many recent weeks are not yet scored, and why (plain text included)."""
+    s = dict(settle or {"weeks": 0, "source": "configured", "has_vintages": False})
+    weeks = int(s.get("weeks", 0))
+    source = str(s.get("source", "configured"))
+    if not s.get("has_vintages", False):
+        text = ("The observations carry no reporting history (no vintages), so revisions "
+                "cannot be checked; every observed week is scored as it stands.")
+    elif weeks == 0:
+        text = ("Every observed week is scored, including the latest ones, which may still "
+                "be revised.")
+    else:
+        why = ("estimated from past revisions: after that many weeks, values moved by less "
+               "than 2% in 9 of 10 weeks" if source == "estimated" else "as configured")
+        text = (f"The {weeks} most recent week(s) are not yet scored, because late reports "
+                f"may still change them ({why}).")
+    return {"weeks": weeks, "source": source, "has_vintages": bool(s.get("has_vintages")),
+            "text": text}
+
+
+def _headline_entry(cfg: BriefingConfig, h: Mapping[str, Any],
+                    track: Sequence[TrackRow]) -> dict[str, Any]:
+    """The headline choice of one quantity, with its label and a sentence naming it."""
+    method = str(h.get("method"))
+    label = METHOD_LABELS.get(method, method)
+    out = dict(h)
+    out["label"] = label
+    out["quantity_name"] = cfg.quantity_info(str(h.get("quantity"))).name
+    out["sentence"] = (f"The figures for {out['quantity_name'].lower()} come from the "
+                       f"{label}: {h.get('reason', '')}").rstrip(": ")
+    if not out["sentence"].endswith("."):
+        out["sentence"] += "."
+    return out
+
+
 def _history(cfg: BriefingConfig, known: pd.DataFrame,
-             provisional: set[tuple[str, str, pd.Timestamp]], *, weeks: int) -> dict[str, Any]:
-    """Recent observed weeks per region and quantity, for the charts (as known on the date)."""
+             provisional: set[tuple[str, str, pd.Timestamp]], *, weeks: int,
+             nowcast: pd.DataFrame | None = None) -> dict[str, Any]:
+    """Recent observed weeks per region and quantity, for the charts (as known on the date).
+
+    Provisional weeks with a nowcast carry its central value and 90% range (else None).
+    """
     out: dict[str, Any] = {}
     if known.empty:
         return out
+    now = {}
+    if nowcast is not None and not nowcast.empty:
+        for r in nowcast.itertuples(index=False):
+            if not bool(r.complete) and math.isfinite(float(r.nowcast)):
+                now[(str(r.region), str(r.quantity), pd.Timestamp(r.week_ending))] = (
+                    round_count(float(r.nowcast)), round_count(float(r.nowcast_low90)),
+                    round_count(float(r.nowcast_high90)))
     start = known["week_ending"].max() - pd.Timedelta(days=7 * (weeks - 1))
     recent = known.loc[known["week_ending"] >= start].sort_values("week_ending")
     for (region, quantity), part in recent.groupby(["region", "quantity"], sort=True):
@@ -849,5 +1086,7 @@ def _history(cfg: BriefingConfig, known: pd.DataFrame,
             "value": [round_count(float(v)) for v in part["value"]],
             "provisional": [(region, quantity, pd.Timestamp(w)) in provisional
                             for w in part["week_ending"]],
+            "nowcast": [now.get((region, quantity, pd.Timestamp(w))) for w in
+                        part["week_ending"]],
         }
     return out

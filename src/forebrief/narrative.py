@@ -58,6 +58,13 @@ def _last_text(o: OutlookRow) -> str:
 
 
 def _change_phrase(o: OutlookRow) -> str:
+    if o.last_value_nowcast_text is not None:
+        # compare with the week's expected complete count, not with its provisional report
+        verb = {"up": "up from", "down": "down from",
+                "about the same": "about the same as"}.get(o.direction, "against")
+        return (f"{verb} about {o.last_value_nowcast_text} expected for the week ending "
+                f"{o.last_week_text} once late reports are in (9 in 10 chance: "
+                f"{o.last_value_nowcast_range90_text}; {o.last_value_text} reported so far)")
     if o.direction == "up":
         return f"up from {_last_text(o)} in the week ending {o.last_week_text}"
     if o.direction == "down":
@@ -82,9 +89,11 @@ def _headline(facts: BriefingFacts) -> tuple[str, ...]:
     if focus is not None:
         scope = (f"Across {facts.jurisdiction}" if focus.is_total else
                  f"In {focus.region_name}")
+        caveat = _coverage_caveat(facts, focus.quantity)
         out.append(
             f"{scope}, {_unit(focus)} are expected to be about {focus.median_text} in the week "
-            f"ending {focus.week_ending_text}, {_change_phrase(focus)}, with {_range90(focus)}."
+            f"ending {focus.week_ending_text}, {_change_phrase(focus)}, with {_range90(focus)}"
+            f"{caveat}."
         )
     else:
         out.append("No combined forecast could be made for this week.")
@@ -96,7 +105,9 @@ def _headline(facts: BriefingFacts) -> tuple[str, ...]:
             f"week ending {risk.week_ending_text}."
         )
     elif focus is not None:
-        out.append(f"The chance that {_unit(focus)} rise above last week's level is "
+        level = ("last week's expected complete count" if focus.last_value_nowcast_text
+                 else "last week's level")
+        out.append(f"The chance that {_unit(focus)} rise above {level} is "
                    f"{focus.p_above_last_text}.")
     lead_q = summ.get("lead_quantity")
     track = (summ.get("track") or {}).get(lead_q)
@@ -108,14 +119,27 @@ def _headline(facts: BriefingFacts) -> tuple[str, ...]:
         verdict = ("was more accurate than" if track["beats_baseline"]
                    else "was not more accurate than")
         out.append(
-            f"In recent weeks the combined forecast {verdict} simply assuming \"same as last "
+            f"In recent weeks the {track['label']} {verdict} simply assuming \"same as last "
             f"week\" ({track['vs_baseline_text']}), and {models['n_reliable']} of "
             f"{models['n_models']} models have earned a reliable rating."
         )
+
     elif models is not None:
         out.append(f"{models['n_reliable']} of {models['n_models']} models have earned a "
                    "reliable rating; there is no track record of the combined forecast yet.")
     return tuple(out)
+
+
+def _horizons_text(hs: list[int]) -> str:
+    words = [f"{h} weeks ahead" for h in hs]
+    return words[0] if len(words) == 1 else ", ".join(words[:-1]) + " and " + words[-1]
+
+
+def _coverage_caveat(facts: BriefingFacts, quantity: str) -> str:
+    """', though its 9 in 10 ranges held 7 in 10 times lately' when coverage was off."""
+    track = (facts.summary.get("track") or {}).get(quantity) or {}
+    warning = track.get("coverage_warning")
+    return f" (though {warning})" if warning else ""
 
 
 def _outlook_section(facts: BriefingFacts) -> Section:
@@ -126,11 +150,15 @@ def _outlook_section(facts: BriefingFacts) -> Section:
         rows = [o for o in facts.outlook if o.quantity == q["id"] and o.horizon == h1]
         if not rows:
             continue
+        entry = next((h for h in facts.headline if h.get("quantity") == q["id"]), None)
+        if entry is not None and entry.get("sentence"):
+            paras.append(str(entry["sentence"]))
         total = next((o for o in rows if o.is_total), None)
         if total is not None:
             text = (f"{q['name']}: across {facts.jurisdiction}, about {total.median_text} in the "
                     f"week ending {total.week_ending_text}, {_change_phrase(total)}; "
-                    f"{_range90(total)}, and {_range50(total)}.")
+                    f"{_range90(total)}{_coverage_caveat(facts, q['id'])}, and "
+                    f"{_range50(total)}.")
             if total.median_rate_text:
                 text += (f" That is about {total.median_rate_text} per 100,000 residents "
                          f"(9 in 10 chance: {total.range90_rate_text}).")
@@ -140,13 +168,22 @@ def _outlook_section(facts: BriefingFacts) -> Section:
                 text += " Further ahead: " + "; ".join(
                     f"{_weeks(o.horizon)} about {o.median_text} ({o.range90_low_text} to "
                     f"{o.range90_high_text})" for o in later) + "."
+                worse = [h for h in (facts.summary.get("worse_than_baseline_horizons") or {})
+                         .get(q["id"], []) if h > h1]
+                if worse:
+                    text += (" In the back-test, at " + _horizons_text(worse) + " this "
+                             "combination did worse than simply assuming \"same as last "
+                             "week\", so read those figures as a rough guide only.")
             paras.append(text)
         for o in rows:
             if o.is_total:
                 continue
+            last = (f"last week about {o.last_value_nowcast_text} expected once late "
+                    f"reports are in ({o.last_value_text} reported so far)"
+                    if o.last_value_nowcast_text else f"last week {o.last_value_text}")
             line = (f"{o.region_name}, {o.quantity_name.lower()}: about {o.median_text} "
-                    f"(9 in 10 chance: {o.range90_low_text} to {o.range90_high_text}); last "
-                    f"week {o.last_value_text}")
+                    f"(9 in 10 chance: {o.range90_low_text} to {o.range90_high_text}), "
+                    f"{o.direction if o.direction != 'unknown' else 'no comparison'}; {last}")
             if o.p_above_threshold is not None and o.p_above_threshold >= 0.1:
                 line += (f"; {o.p_above_threshold_text} chance of passing the "
                          f"{o.threshold_label} of {o.threshold_text}")
@@ -155,8 +192,11 @@ def _outlook_section(facts: BriefingFacts) -> Section:
         paras.append(facts.total_note)
     provisional = sorted({o.last_week_text for o in facts.outlook if o.last_provisional})
     if provisional:
+        nowcast = any(o.last_value_nowcast_text for o in facts.outlook)
         paras.append("The latest weekly counts (week ending " + ", ".join(provisional)
-                     + ") are provisional and may be revised upward as late reports arrive.")
+                     + ") are provisional and may be revised upward as late reports arrive"
+                     + ("; \"expected once late reports are in\" is a nowcast from how "
+                        "complete past weeks were at the same delay." if nowcast else "."))
     return Section("outlook", "Outlook for next week", tuple(paras), tuple(bullets))
 
 
@@ -172,7 +212,10 @@ def _certainty_section(facts: BriefingFacts) -> Section:
         text = (f"{q['name']}: the 9 in 10 range runs from {first.below_text} to "
                 f"{first.above_text} the central estimate {_weeks(first.horizon)}")
         if last is not first:
-            text += (f", widening to {last.below_text} and {last.above_text} "
+            verb = ("widening to" if last.width90_relative > first.width90_relative
+                    else "narrowing to" if last.width90_relative < first.width90_relative
+                    else "and")
+            text += (f", {verb} {last.below_text} and {last.above_text} "
                      f"{_weeks(last.horizon)}")
         bullets.append(f"{text}; {first.agreement}.")
     for d in facts.summary.get("dominant", []):
@@ -228,7 +271,8 @@ def _track_section(facts: BriefingFacts) -> Section:
                         "back-tested.",))
     h1 = facts.summary.get("horizon", 1)
     bullets = []
-    order = {"weighted_pool": 0, "equal_pool": 1, "quantile_median": 2}
+    order = {"quantile_median": 0, "weighted_pool": 1, "equal_pool": 2,
+             "recalibrated_pool": 3}
     rows = sorted((t for t in facts.track if t.horizon == h1 and t.method in order),
                   key=lambda t: (t.quantity, order[t.method]))
     for t in rows:
@@ -238,6 +282,8 @@ def _track_section(facts: BriefingFacts) -> Section:
         )
     paras = [f"Back-test over the last {facts.track_weeks} issue dates, each forecast rebuilt "
              "with only the data known at the time."]
+    if facts.settle.get("text"):
+        paras.append(str(facts.settle["text"]))
     for tt in facts.track_total:
         paras.append(f"For {facts.jurisdiction} as a whole, {tt['quantity_name'].lower()} fell "
                      f"inside the combined forecast's 90% range {tt['in_90_text']}.")
@@ -284,6 +330,8 @@ def _data_section(facts: BriefingFacts) -> Section:
     for s in d.get("short_history", []):
         bullets.append(f"{s['region_name']} ({s['quantity']}): only {s['weeks']} weeks of data.")
     paras = [f"Data as of {facts.data_as_of_text}; the latest weeks are provisional."]
+    if facts.settle.get("text"):
+        paras.append(str(facts.settle["text"]))
     if not bullets:
         paras.append("No submissions were set aside.")
     return Section("data", "Data notes", tuple(paras), tuple(bullets))
@@ -304,10 +352,13 @@ def _methods_section(facts: BriefingFacts) -> Section:
         "distributions, weighted by calibration times information, with models below a "
         f"calibration cutoff ({alpha_text}) left out. Accuracy is the weighted interval score, "
         "and 'error N times the baseline's' is its relative value against the persistence "
-        "(\"same as last week\") forecast.",
+        "(\"same as last week\") forecast, each pair of forecasts compared on the quantile "
+        "levels both give.",
+        str(m.get("headline_rule_text", "")),
+        str(m.get("nowcast_text", "")),
         f"forebrief {facts.tool_version}; issue date {facts.issued}.",
     )
-    return Section("methods", "Methods note", paras)
+    return Section("methods", "Methods note", tuple(p for p in paras if p))
 
 
 def build_narrative(facts: BriefingFacts) -> Narrative:

@@ -149,6 +149,8 @@ def _decisions(run: BriefingRun) -> dict[str, Any]:
         "history_as_of": run.ensemble.summary.get("history_as_of"),
         "baseline": cfg.baseline,
         "baseline_generated": run.baseline_generated,
+        "settle_weeks": dict(run.settle),
+        "headline": [dict(h) for h in run.headline],
     }
 
 

@@ -9,13 +9,14 @@ rebuilt later and gives the same answer whatever data arrived afterwards.
 from __future__ import annotations
 
 from collections.abc import Callable, Mapping
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 from typing import Any
 
 import pandas as pd
 
 from forebrief import __version__
 from forebrief.backtest import BacktestResult, backtest, issue_dates_between
+from forebrief.compare import choose_headline
 from forebrief.config import BriefingConfig
 from forebrief.ensemble import (
     EnsembleResult,
@@ -27,6 +28,7 @@ from forebrief.ensemble import (
 from forebrief.errors import ConfigError
 from forebrief.facts import BriefingFacts, build_facts
 from forebrief.narrative import Narrative, build_narrative, narrative_text
+from forebrief.nowcast import nowcast_table, settle_delay
 from forebrief.observations import revisions_between
 from forebrief.scoring.engine import ScoreResult, ScoreSettings, score_forecasts
 from forebrief.workflow import Inputs
@@ -35,6 +37,7 @@ __all__ = ["STAGES", "BriefingRun", "known_by", "latest_issue_date", "run_briefi
 
 STAGES: tuple[str, ...] = (
     "reading and checking inputs",
+    "nowcast of the provisional weeks",
     "scoring the models",
     "persistence baseline",
     "building the ensembles",
@@ -60,6 +63,9 @@ class BriefingRun:
     text: str
     baseline: pd.DataFrame
     baseline_generated: bool
+    nowcast: pd.DataFrame = field(default_factory=pd.DataFrame)
+    settle: Mapping[str, Any] = field(default_factory=dict)
+    headline: tuple[Mapping[str, Any], ...] = ()
 
     def tables(self) -> dict[str, pd.DataFrame]:
         """The record's tables, by file name."""
@@ -74,6 +80,7 @@ class BriefingRun:
             "backtest_scores.csv": self.backtest.scores if self.backtest else empty,
             "weights_history.csv": self.backtest.weights_history if self.backtest else empty,
             "excluded.csv": self.inputs.excluded,
+            "nowcast.csv": self.nowcast,
         }
         if self.baseline_generated:
             out["baseline.csv"] = self.baseline
@@ -111,10 +118,13 @@ def run_briefing(
     d = pd.Timestamp(issued) if issued is not None else latest_issue_date(
         forecasts, baseline=cfg.baseline)
     obs = known_by(inputs.observations.table, d)
+    step("nowcast of the provisional weeks")
+    settle = settle_info(obs, issued=d, setting=cfg.settle_weeks)
+    nowcast = nowcast_table(obs, as_of=d, recent_weeks=cfg.nowcast_weeks)
     settings = EnsembleSettings(
         window=cfg.window, alpha=cfg.alpha, min_items=cfg.min_items, baseline=cfg.baseline,
         levels=cfg.levels, overshoot=cfg.overshoot, background=cfg.background,
-        power=cfg.power, signed=cfg.signed,
+        power=cfg.power, signed=cfg.signed, settle_weeks=int(settle["weeks"]),
     )
     step("persistence baseline")
     member_dates = issue_dates_between(forecasts, pd.Timestamp.min, d,
@@ -141,15 +151,17 @@ def run_briefing(
                                  settings=score_settings)
         with_base = score_forecasts(table.loc[table["issued"] < d], history.observations,
                                     as_of=history.as_of, settings=score_settings)
-        scores = _with_relative(scores, with_base, cfg.baseline)
     step("building the ensembles")
     ens = build_ensemble(forecasts, obs, issued=d, settings=settings, history=history)
+    if scores is not None:
+        scores = _with_relative(scores, with_base, cfg.baseline, weights=ens.weights)
     step("back-testing")
     start = d - pd.Timedelta(days=7 * cfg.backtest_weeks)
     end = d - pd.Timedelta(days=1)
     bt = None
     if issue_dates_between(forecasts, start, end, exclude={cfg.baseline}):
-        bt = backtest(forecasts, obs, start=start, end=end, settings=settings)
+        bt = backtest(forecasts, obs, start=start, end=end, settings=settings, rating_date=d)
+    headline = choose_headlines(cfg, ens, bt)
     step("facts and narrative")
     revisions = pd.DataFrame(columns=["region", "quantity", "week_ending", "value_then",
                                       "value_now", "change"])
@@ -160,19 +172,67 @@ def run_briefing(
     facts = build_facts(
         cfg=cfg, issued=d, tool_version=__version__, observations=obs, forecasts=table,
         scores=scores, ensemble=ens, backtest=bt, excluded=inputs.excluded,
-        previous=previous, revisions=revisions,
+        previous=previous, revisions=revisions, nowcast=nowcast, settle=settle,
+        headline=headline,
     )
     narrative = build_narrative(facts)
     text = narrative_text(facts, narrative)
     return BriefingRun(d, cfg, inputs, scores, ens, bt, facts, narrative, text, baseline,
-                       generated)
+                       generated, nowcast, settle, headline)
 
 
-def _with_relative(scores: ScoreResult, with_base: ScoreResult, baseline: str) -> ScoreResult:
+def settle_info(observations: pd.DataFrame, *, issued: pd.Timestamp,
+                setting: int | str) -> dict[str, Any]:
+    """The settle delay used for ratings on ``issued``, and where it came from.
+
+    ``setting`` is the configuration's ``settle_weeks``: a number is used as given; ``"auto"``
+    estimates it from the vintages known on ``issued`` (:func:`forebrief.nowcast.
+    settle_delay`). Without vintages the delay is 0 and revisions cannot be checked.
+    """
+    has_vintages = bool("reported" in observations and observations["reported"].notna().any()
+                        and observations.duplicated(
+                            ["region", "quantity", "week_ending"]).any())
+    if setting != "auto":
+        weeks, source = int(setting), "configured"
+    elif has_vintages:
+        weeks, source = int(settle_delay(observations, as_of=issued)), "estimated"
+    else:
+        weeks, source = 0, "no vintages"
+    return {"weeks": weeks, "source": source, "has_vintages": has_vintages}
+
+
+def choose_headlines(cfg: BriefingConfig, ens: EnsembleResult,
+                     bt: BacktestResult | None) -> tuple[dict[str, Any], ...]:
+    """The headline combination of each quantity, chosen on its back-test record.
+
+    ``[ensemble] headline = "auto"`` applies the rule of :func:`forebrief.compare.
+    choose_headline` (the median of the models unless another combination did clearly
+    better); a method name forces that combination.
+    """
+    methods = [str(m) for m in dict.fromkeys(ens.ensemble["method"])]
+    forced = None if cfg.headline == "auto" else cfg.headline
+    quantities = sorted(set(ens.ensemble["quantity"]))
+    out = []
+    empty = pd.DataFrame(columns=["model", "region", "quantity", "week_ending", "horizon",
+                                  "issued", "wis"])
+    for q in quantities:
+        by_item = bt.by_item if bt is not None else empty
+        entry = choose_headline(by_item, quantity=q, default="quantile_median",
+                                candidates=[m for m in methods if m != "quantile_median"],
+                                forced=forced)
+        out.append({"quantity": q, **entry})
+    return tuple(out)
+
+
+def _with_relative(scores: ScoreResult, with_base: ScoreResult, baseline: str, *,
+                   weights: pd.DataFrame) -> ScoreResult:
     """Members' scores (panel without the baseline) with relative WIS against the baseline.
 
     The baseline's own row comes from the run that includes it (its Classical Model columns use
-    that panel), so leadership can see it beside the models.
+    that panel), so leadership can see it beside the models. The per-model table's ``weight``
+    is the ensemble's (``weights``, the rows of weights.csv: optimised cutoff and the
+    not-yet-rated rule), so scores_by_model.csv and weights.csv agree; a model without a row
+    there (the baseline, a model not issuing this week) has weight nan.
     """
     from dataclasses import replace
 
@@ -186,9 +246,14 @@ def _with_relative(scores: ScoreResult, with_base: ScoreResult, baseline: str) -
             keys, kind="stable").reset_index(drop=True)
 
     keys = ["quantity", "horizon", "model"]
+    by_model = merge(scores.by_model, with_base.by_model, keys)
+    used = weights.loc[weights["model"] != baseline, [*keys, "weight"]].astype(
+        {"horizon": by_model["horizon"].dtype})
+    by_model = by_model.drop(columns=["weight"]).merge(
+        used, on=keys, how="left", validate="one_to_one")[list(by_model.columns)]
     return replace(
         scores,
-        by_model=merge(scores.by_model, with_base.by_model, keys),
+        by_model=by_model,
         by_model_region=merge(scores.by_model_region, with_base.by_model_region,
                               ["quantity", "horizon", "region", "model"]),
         by_item=pd.concat([scores.by_item, with_base.by_item.loc[

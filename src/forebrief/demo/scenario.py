@@ -6,28 +6,41 @@ team or outbreak is accidental.
 
 The scenario is built in four steps, all from one seed and without touching any file:
 
-1. **Truth.** A daily discrete-time SEIR model per region (different transmission strength,
-   seeding day and size, a little coupling through a shared mixing term) gives infections;
-   admissions are a fraction of infections after a gamma-shaped delay, deaths a fraction of
-   admissions after a further delay; weekly sums get negative-binomial noise. The
-   whole-jurisdiction series is the sum of the regions' true counts.
+1. **Truth.** For each region and quantity the complete weekly count is
+   ``y_t = round(m_t * exp(u_t))``. ``m_t`` is a smooth deterministic rise-and-fall curve (a
+   floor plus a peak made of two exponentials: growth at rate ``a`` per week before the peak,
+   decay at rate ``b`` after it), with every region's admissions peaking 5.5-8 weeks before the
+   last season week, so the wave rises and falls inside the 12 rated weeks and the last issue
+   date sits on the falling side. ``u_t`` is a log-scale AR(1),
+   ``u_t = rho * u_{t-1} + e_t + c_t`` with ``e_t ~ N(0, s^2)`` per region and a small shock
+   ``c_t ~ N(0, s_c^2)`` shared by all regions in a week. Deaths follow the same construction
+   on a smaller curve about a week behind the admissions curve. The whole-jurisdiction series
+   is the sum of the regions' counts. Four weeks beyond the season are simulated too: they
+   are the targets of the last issue date (``Scenario.truth_ahead``, never published).
 2. **Reporting.** Each week is first published on the Monday after it ends at 75-90 % of its
    true count (50-62 % in the holiday week), then revised upwards over the next 1-3 Mondays
    until complete. Every published value is kept as a vintage.
-3. **Forecasts.** On every issue Monday each team sees only what had been published by then,
-   fits its own crude log-linear growth rate to the last few weeks, damps it, and turns it
-   into log-normal quantiles. The teams differ only in honest ways: a nowcast correction for
-   incomplete recent weeks or not, window length, damping, spread multiplier, bias, lag.
+3. **Forecasts.** The reference team is *calibrated by construction*: on each issue Monday an
+   oracle tells it the mean curves and the complete (not the provisional) value of the latest
+   published week ``t``, that is ``u_t``, and it gives the exact quantiles of ``y_{t+h}``
+   given ``u_t``: log-normal with log median ``log m_{t+h} + rho^h u_t`` and log variance
+   ``(s^2 + s_c^2) (1 - rho^{2h}) / (1 - rho^2)`` (before the rounding to whole counts). The
+   whole jurisdiction's quantiles come from 4000 seeded joint draws of the same conditional
+   distribution, summed over the regions. Every other team is one honest, named deviation
+   from that forecast (spread multiplied, median shifted, a week late, its own model error),
+   so each team's designed behaviour is a real property of its forecasts against the
+   complete counts.
 4. **Faults.** One team's file in one week is written with several faults (a value as text,
    crossing quantiles, a duplicated row, a missing level); its other weeks are clean.
 
-Cost: about 250 days x 6 regions for the epidemic and 8 teams x 18 weeks x 14 series small
-projections; well under a second.
+Cost: 40 weeks x 6 regions x 2 quantities of truth; 18 issue dates x 2 quantities x 4000 joint
+draws shared by the 8 teams; well under a second.
 """
 
 from __future__ import annotations
 
 import datetime as dt
+import math
 from dataclasses import dataclass, field
 from statistics import NormalDist
 from typing import Any
@@ -43,6 +56,7 @@ __all__ = [
     "HORIZONS",
     "LEVELS",
     "QUANTITIES",
+    "RATING_WEEKS",
     "REGIONS",
     "TEAMS",
     "TOTAL_REGION",
@@ -59,8 +73,8 @@ LAST_WEEK_ENDING = dt.date(2026, 11, 28)
 LAST_ISSUED = dt.date(2026, 11, 30)
 N_SEASON_WEEKS = 36
 N_ISSUES = 18
-#: Days simulated before the first season week, so the first weeks already have cases.
-_LEAD_IN_DAYS = 35
+#: Observed target weeks behind each rating in the demo's configuration ([scoring] window).
+RATING_WEEKS = 12
 
 #: Levels every team submits; they include the Classical Model levels 0.05, 0.25, 0.5, 0.75, 0.95.
 LEVELS: tuple[float, ...] = (0.025, 0.05, 0.1, 0.25, 0.5, 0.75, 0.9, 0.95, 0.975)
@@ -102,27 +116,29 @@ _QUANTITY_META: tuple[dict[str, str], ...] = (
 
 @dataclass(frozen=True)
 class TeamSpec:
-    """An invented modelling team and the habits of its forecaster.
+    """An invented modelling team: how its forecast departs from the calibrated one.
 
-    window: weeks used to fit the growth rate; damping: growth kept per week ahead (0-1);
-    spread: multiplier on the honest log-scale spread; bias: added to the log median;
-    lag: latest published weeks ignored; nowcast: inflate the two newest weeks by the
-    completeness seen in older first reports; jitter: sd of the team's own model error (log);
-    first_issue: index of its first issue week (0 = first of the 18); skips: issue weeks missed;
-    malformed: one of its files is written with faults.
+    Every team starts from the scenario's own predictive distribution (module docstring, step
+    3) and changes it in the ways named here. spread: multiplier on the log-scale spread;
+    bias: added to the log median (``log(1.35)`` puts every median 35 % high); lag: weeks
+    late (it re-issues the forecast it would have made ``lag`` weeks earlier, for the same
+    horizons, so its targets are ``lag`` weeks behind); jitter: sd of the team's own model
+    error, added to the log median per issue date, region and quantity; first_issue: index of
+    its first issue week (0 = first of the 18); skips: issue weeks missed; malformed: one of
+    its files is written with faults; expected_verdict: the verdict its design should earn
+    against the complete counts ("reliable", "overconfident", "underconfident", "biased
+    high", "biased low", "lags" or "not yet rated").
     """
 
     id: str
     name: str
     description: str
     behaviour: str
-    window: int = 4
-    damping: float = 0.85
+    expected_verdict: str = "reliable"
     spread: float = 1.0
     bias: float = 0.0
     lag: int = 0
-    nowcast: bool = True
-    jitter: float = 0.05
+    jitter: float = 0.0
     first_issue: int = 0
     skips: int = 0
     malformed: bool = False
@@ -132,75 +148,74 @@ TEAMS: tuple[TeamSpec, ...] = (
     TeamSpec(
         "copperfinch",
         "Copper Finch Modelling Group",
-        "Growth-rate projection with a correction for late reports; keeps its uncertainty honest.",
-        "well calibrated",
-        window=4,
-        damping=0.6,
+        "Forecasts from the scenario's own model, told the complete count of the latest week: "
+        "calibrated by construction.",
+        "well calibrated (the scenario's own forecast distribution)",
+        expected_verdict="reliable",
     ),
     TeamSpec(
         "glassheron",
         "Glass Heron Analytics",
-        "Sharp short-term projections that rarely admit how uncertain they are.",
-        "overconfident (intervals too narrow)",
-        window=3,
-        damping=0.9,
+        "The right central forecasts, but ranges only 0.4 times as wide as they should be.",
+        "overconfident (ranges far too narrow)",
+        expected_verdict="overconfident",
         spread=0.4,
     ),
     TeamSpec(
         "mothlight",
         "Mothlight Research Unit",
-        "Cautious projections with very wide ranges.",
-        "underconfident (intervals too wide)",
-        window=5,
-        spread=2.2,
+        "The right central forecasts, but ranges 2.5 times as wide as they should be.",
+        "underconfident (ranges far too wide)",
+        expected_verdict="underconfident",
+        spread=2.5,
     ),
     TeamSpec(
         "amberkite",
         "Amber Kite Consultancy",
-        "Projections that lean towards the worst case.",
-        "biased high",
-        damping=0.6,
-        bias=0.22,
+        "Leans towards the worst case: every forecast is 35 % higher than it should be.",
+        "biased high (medians 35 % too high)",
+        expected_verdict="biased high",
+        bias=math.log(1.35),
     ),
     TeamSpec(
         "driftotter",
         "Drift Otter Collective",
-        "Smooths over a long window and waits for a trend to settle before following it.",
-        "lags the trend (biased low while rising)",
-        window=7,
-        damping=0.6,
+        "Sends the forecast it would have made a week earlier, so it is a week late at every "
+        "turn of the wave.",
+        "lags the wave by a week (too low while it rises, too high while it falls)",
+        expected_verdict="lags",
         lag=1,
-        nowcast=False,
-        spread=1.1,
     ),
     TeamSpec(
         "pebblewren",
         "Pebble Wren Lab",
-        "A small volunteer team that submits when it can.",
-        "skips some weeks",
-        window=4,
-        damping=0.7,
+        "A small volunteer team that submits when it can; close to calibrated, with a little "
+        "model error of its own and slightly wider ranges to allow for it.",
+        "skips some weeks (4 of the 18)",
+        expected_verdict="reliable",
         spread=1.1,
-        jitter=0.1,
+        jitter=0.06,
         skips=4,
     ),
     TeamSpec(
         "freshsprout",
         "Fresh Sprout Forecasting",
-        "A new team that joined the collection in the last weeks of the season.",
-        "new entrant without history",
-        window=4,
-        spread=1.0,
+        "A new team that joined in the last three weeks of the season; close to calibrated, "
+        "but with too little history to be rated.",
+        "new entrant without history (the last 3 issue dates)",
+        expected_verdict="not yet rated",
+        jitter=0.03,
         first_issue=N_ISSUES - 3,
     ),
     TeamSpec(
         "inkbadger",
         "Ink Badger Institute",
-        "Solid projections, but its submission pipeline once sent a broken file.",
-        "one malformed file",
-        window=5,
-        spread=1.05,
-        jitter=0.06,
+        "Solid forecasts with slightly wide ranges, but its submission pipeline once sent a "
+        "broken file.",
+        "one malformed file (otherwise close to calibrated)",
+        expected_verdict="reliable",
+        spread=1.12,
+        jitter=0.04,
         malformed=True,
     ),
 )
@@ -216,6 +231,8 @@ class Scenario:
         (model, issued); sorted by model, issued, region, quantity, week_ending, level.
     malformed: {(model, issued ISO date): exact file text} of the files written with faults.
     meta: plain dict for scenario.json.
+    truth_ahead: like ``truth`` for the weeks after the season that the last issue date's
+        forecasts target (never published, not written to any file).
     """
 
     seed: int
@@ -224,6 +241,7 @@ class Scenario:
     submissions: pd.DataFrame
     malformed: dict[tuple[str, str], str] = field(default_factory=dict)
     meta: dict[str, Any] = field(default_factory=dict)
+    truth_ahead: pd.DataFrame = field(default_factory=pd.DataFrame)
 
 
 # ---------------------------------------------------------------------------------------------
@@ -248,64 +266,79 @@ def _issue_dates() -> list[dt.date]:
 # ---------------------------------------------------------------------------------------------
 # step 1: the wave
 
+#: Weeks simulated after the season: the targets of the last issue date.
+_N_AHEAD = max(HORIZONS)
+#: Log-scale AR(1) noise per quantity (admissions, deaths): persistence rho, sd s of the
+#: regional shock, sd s_c of the shock common to all regions in a week.
+_RHO = np.array([0.6, 0.5])
+_SD = np.array([0.10, 0.13])
+_SD_COMMON = np.array([0.04, 0.04])
 
-def _delay_pmf(shape: float, scale: float, days: int = 31) -> np.ndarray:
-    x = np.arange(days) + 0.5
-    w = x ** (shape - 1.0) * np.exp(-x / scale)
-    return w / w.sum()
+
+def _wave_curve(
+    x: np.ndarray, *, rise: np.ndarray, fall: np.ndarray, floor: np.ndarray
+) -> np.ndarray:
+    """Smooth rise-and-fall curve of the weeks ``x`` from the peak, 1 at the peak.
+
+    ``floor + (1 - floor) g(x)`` with ``g(x) = (a + b) / (b e^{-a x} + a e^{b x})``: g grows
+    like ``e^{a x}`` well before the peak (a = ``rise``), decays like ``e^{-b x}`` well after
+    it (b = ``fall``), and its only maximum is g(0) = 1. Arguments broadcast.
+    """
+    a, b = rise, fall
+    g = (a + b) / (b * np.exp(-a * x) + a * np.exp(b * x))
+    return floor + (1.0 - floor) * g
 
 
-def _simulate_truth(rng: np.random.Generator) -> tuple[np.ndarray, dict[str, Any]]:
-    """True weekly counts, shape (quantity, region, week); regions without the total."""
+def _ar1_noise(shape: tuple[int, int], q: int, rng: np.random.Generator) -> np.ndarray:
+    """Log-scale noise u (region, week) of quantity ``q``, started from its stationary law."""
+    n_reg, n_weeks = shape
+    rho, s, s_c = _RHO[q], _SD[q], _SD_COMMON[q]
+    scale = 1.0 / math.sqrt(1.0 - rho**2)
+    u = np.empty(shape)
+    u[:, 0] = scale * (s * rng.standard_normal(n_reg) + s_c * rng.standard_normal())
+    for w in range(1, n_weeks):
+        u[:, w] = rho * u[:, w - 1] + s * rng.standard_normal(n_reg) + s_c * rng.standard_normal()
+    return u
+
+
+def _simulate_truth(rng: np.random.Generator) -> tuple[np.ndarray, np.ndarray, dict[str, Any]]:
+    """Mean curves m and log-scale noise u, each (quantity, region, week), regions only.
+
+    Weeks run over the season and ``_N_AHEAD`` weeks beyond it; the complete counts are
+    ``round(m * exp(u))``.
+    """
     n_reg = len(REGIONS)
     pop = np.array([r.population for r in REGIONS], dtype=float)
-    r0 = rng.uniform(1.30, 1.46, n_reg)
-    seed_day = rng.integers(0, 80, n_reg)
-    seed_size = rng.uniform(2.0, 25.0, n_reg) * pop / 1e6
-    p_hosp = rng.uniform(0.0035, 0.0065, n_reg)
-    p_death = rng.uniform(0.09, 0.15, n_reg)
-    coupling = 0.006
-    sigma, gamma = 1.0 / 3.0, 1.0 / 5.0
-    beta = r0 * gamma
+    peak = rng.uniform(N_SEASON_WEEKS - 9.0, N_SEASON_WEEKS - 6.5, n_reg)  # admissions peak
+    rise = rng.uniform(0.30, 0.40, n_reg)
+    fall = rng.uniform(0.19, 0.25, n_reg)
+    floor = rng.uniform(0.04, 0.07, n_reg)
+    peak_per_100k = rng.uniform(20.0, 36.0, n_reg)
+    deaths_share = rng.uniform(0.08, 0.13, n_reg)
+    deaths_lag = rng.uniform(0.6, 1.1, n_reg)
 
-    n_days = _LEAD_IN_DAYS + 7 * N_SEASON_WEEKS
-    s, e, i = pop.copy(), np.zeros(n_reg), np.zeros(n_reg)
-    infections = np.zeros((n_days, n_reg))
-    for day in range(n_days):
-        seeded = np.where(seed_day == day, np.minimum(seed_size, s), 0.0)
-        s, e = s - seeded, e + seeded
-        mixing = (1.0 - coupling) * i / pop + coupling * i.sum() / pop.sum()
-        new_inf = s * (1.0 - np.exp(-beta * mixing))
-        new_inc = e * (1.0 - np.exp(-sigma))
-        new_rec = i * (1.0 - np.exp(-gamma))
-        s, e, i = s - new_inf, e + new_inf - new_inc, i + new_inc - new_rec
-        infections[day] = new_inf
-
-    to_admission = _delay_pmf(4.0, 2.25)  # mean about 9 days
-    to_death = _delay_pmf(3.0, 2.7)  # mean about 8 days
-    adm_daily = np.stack(
-        [np.convolve(infections[:, k], to_admission)[:n_days] * p_hosp[k] for k in range(n_reg)],
-        axis=1,
+    weeks = np.arange(N_SEASON_WEEKS + _N_AHEAD, dtype=float)
+    height = peak_per_100k * pop / 1e5
+    shape = {"rise": rise[:, None], "fall": fall[:, None], "floor": floor[:, None]}
+    adm = height[:, None] * _wave_curve(weeks[None, :] - peak[:, None], **shape)
+    deaths = (deaths_share * height)[:, None] * _wave_curve(
+        weeks[None, :] - (peak + deaths_lag)[:, None], **shape
     )
-    death_daily = np.stack(
-        [np.convolve(adm_daily[:, k], to_death)[:n_days] * p_death[k] for k in range(n_reg)],
-        axis=1,
-    )
-
-    def weekly(daily: np.ndarray) -> np.ndarray:
-        season = daily[_LEAD_IN_DAYS:]
-        return season.reshape(N_SEASON_WEEKS, 7, n_reg).sum(axis=1).T  # (region, week)
-
-    def noisy(mean: np.ndarray, size: float) -> np.ndarray:
-        return rng.negative_binomial(size, size / (size + mean)).astype(np.int64)
-
-    truth = np.stack([noisy(weekly(adm_daily), 150.0), noisy(weekly(death_daily), 200.0)])
+    mean = np.stack([adm, deaths])
+    noise = np.stack([_ar1_noise(adm.shape, q, rng) for q in range(len(QUANTITIES))])
     params = {
-        "r0": r0.round(3).tolist(),
-        "seed_day": seed_day.tolist(),  # days after the simulation start
-        "p_hosp": p_hosp.round(5).tolist(),
+        "peak_per_100k": peak_per_100k.round(2).tolist(),
+        "rise_per_week": rise.round(3).tolist(),
+        "fall_per_week": fall.round(3).tolist(),
+        "floor_share_of_peak": floor.round(3).tolist(),
+        "deaths_share_of_admissions": deaths_share.round(3).tolist(),
+        "deaths_lag_weeks": deaths_lag.round(2).tolist(),
+        "noise": {
+            q: {"rho": float(_RHO[k]), "sd": float(_SD[k]), "sd_common": float(_SD_COMMON[k])}
+            for k, q in enumerate(QUANTITIES)
+        },
     }
-    return truth, params
+    return mean, noise, params
 
 
 # ---------------------------------------------------------------------------------------------
@@ -339,48 +372,57 @@ def _simulate_reporting(
 # step 3: the teams' forecasts
 
 _Z = np.array([NormalDist().inv_cdf(p) for p in LEVELS])
-#: Honest log-scale spread: a level term and a growth-rate term per week ahead (tuned so the
-#: well-calibrated team covers close to the nominal share of outcomes in this scenario).
-_SPREAD_LEVEL = 0.18
-_SPREAD_GROWTH = 0.12
+_H = np.array(HORIZONS)
+#: Joint draws per issue date and quantity for the whole jurisdiction's quantiles.
+_N_DRAWS = 4000
 
 
-def _completeness(seen: np.ndarray, first_reports: np.ndarray, t: int, j: int) -> float:
-    """Share of a week's count present j weeks after its first report, judged from weeks that
-    have since settled (all of it public on the issue date)."""
-    weeks = np.arange(max(0, t - 12), t - 3)
-    now = seen[weeks].sum()
-    then = first_reports[weeks, j].sum()
-    return float(then / now) if now > 0 and then > 0 else 1.0
+def _horizon_sd(q: int) -> np.ndarray:
+    """Log-scale sd of y_{t+h} given u_t, per horizon: s_tot^2 (1 - rho^2h) / (1 - rho^2)."""
+    rho = _RHO[q]
+    return np.sqrt((_SD[q] ** 2 + _SD_COMMON[q] ** 2) * (1.0 - rho ** (2 * _H)) / (1.0 - rho**2))
 
 
-def _project(
-    seen: np.ndarray, vintages: np.ndarray, t: int, team: TeamSpec, jitter: float
+def _noise_paths(q: int, rng: np.random.Generator) -> np.ndarray:
+    """Draws (draw, region, horizon) of ``u_{t+h} - rho^h u_t``: the noise still to come."""
+    n_reg = len(REGIONS)
+    rho, s, s_c = _RHO[q], _SD[q], _SD_COMMON[q]
+    shocks = s * rng.standard_normal((_N_DRAWS, n_reg, len(_H)))
+    shocks += s_c * rng.standard_normal((_N_DRAWS, 1, len(_H)))
+    paths = np.empty_like(shocks)
+    acc = np.zeros((_N_DRAWS, n_reg))
+    for k in range(len(_H)):
+        acc = rho * acc + shocks[:, :, k]
+        paths[:, :, k] = acc
+    return paths
+
+
+def _forecast(
+    team: TeamSpec,
+    mean: np.ndarray,
+    noise: np.ndarray,
+    t: int,
+    q: int,
+    paths: np.ndarray,
+    jitter: np.ndarray,
 ) -> np.ndarray:
-    """Quantiles (horizon, level) from the series as published on the issue date.
+    """Quantiles (series, horizon, level) of one team on the issue date whose latest week is t.
 
-    ``seen``: published values of weeks 0..t; ``vintages``: (week, 4) vintages of the series.
+    ``mean``, ``noise``: (region, week) of quantity ``q``; ``paths``: ``_noise_paths`` draws;
+    ``jitter``: the team's own log error per region. The regions' quantiles are exact
+    log-normal ones; the whole jurisdiction (last series) is the sum of the regions' rounded
+    joint draws. The team uses what it knew ``team.lag`` weeks earlier, for targets that many
+    weeks earlier (zero lag: the calibrated forecast).
     """
-    y = seen.astype(float)
-    if team.nowcast:
-        y[t] /= _completeness(seen, vintages, t, 0)
-        y[t - 1] /= _completeness(seen, vintages, t, 1)
-    if team.lag:
-        y = y[: len(y) - team.lag]
-    seg = np.log1p(y[-team.window :])
-    x = np.arange(team.window) - (team.window - 1) / 2.0
-    slope = float(np.clip((x * (seg - seg.mean())).sum() / (x * x).sum(), -0.45, 0.45))
-    fitted_last = seg.mean() + slope * x[-1]
-    anchor = 0.5 * fitted_last + 0.5 * seg[-1]
-    steps = np.array(HORIZONS, dtype=float) + team.lag
-    kept = np.cumsum(team.damping ** np.arange(1, int(steps[-1]) + 1))
-    growth = slope * kept[steps.astype(int) - 1]
-    log_median = anchor + growth + team.bias + jitter
-    sd = team.spread * np.sqrt(
-        _SPREAD_LEVEL**2 + (_SPREAD_GROWTH * steps) ** 2 + 1.0 / (np.expm1(log_median) + 1.0)
-    )
-    q = np.expm1(log_median[:, None] + sd[:, None] * _Z[None, :])
-    return np.round(np.maximum(q, 0.0), 1) + 0.0  # + 0.0 turns -0.0 into 0.0
+    t0 = t - team.lag
+    log_median = np.log(mean[:, t0 + _H]) + _RHO[q] ** _H * noise[:, [t0]] + team.bias
+    log_median += jitter[:, None]
+    sd = team.spread * _horizon_sd(q)
+    regional = np.exp(log_median[:, :, None] + sd[None, :, None] * _Z[None, None, :])
+    draws = np.rint(np.exp(log_median[None] + team.spread * paths)).sum(axis=1)
+    total = np.quantile(draws, LEVELS, axis=0).T
+    out = np.concatenate([regional, total[None]], axis=0)
+    return np.round(out, 1) + 0.0  # + 0.0 turns -0.0 into 0.0
 
 
 def _issue_plan(team: TeamSpec, rng: np.random.Generator) -> list[int]:
@@ -481,38 +523,51 @@ def _nice(x: float) -> int:
     return int(round(x / step) * step)
 
 
+def _long_table(
+    values: np.ndarray, series: list[RegionSpec], weeks: pd.DatetimeIndex
+) -> pd.DataFrame:
+    """region, quantity, week_ending, value from counts (quantity, series, week)."""
+    n_q, n_s, n_w = values.shape
+    qq, ss, ww = np.meshgrid(np.arange(n_q), np.arange(n_s), np.arange(n_w), indexing="ij")
+    table = pd.DataFrame(
+        {
+            "region": [series[k].id for k in ss.ravel()],
+            "quantity": [QUANTITIES[k] for k in qq.ravel()],
+            "week_ending": weeks[ww.ravel()],
+            "value": values.ravel(),
+        }
+    )
+    return table.sort_values(["region", "quantity", "week_ending"], ignore_index=True)
+
+
 def generate_scenario(*, seed: int = DEFAULT_SEED) -> Scenario:
     """Build the whole invented scenario from ``seed``; same seed, same scenario. O(teams x weeks)."""
     root = np.random.SeedSequence(seed)
-    epi_ss, rep_ss, plan_ss, thr_ss, fault_ss, *team_ss = root.spawn(5 + len(TEAMS))
+    epi_ss, rep_ss, plan_ss, thr_ss, fault_ss, draw_ss, *team_ss = root.spawn(6 + len(TEAMS))
     plan_rng = np.random.default_rng(plan_ss)
 
     week_endings = _week_endings()
     issue_dates = _issue_dates()
     holiday_week = week_endings.index(HOLIDAY_DATE + dt.timedelta(days=1))
 
-    truth_reg, epi_params = _simulate_truth(np.random.default_rng(epi_ss))
+    mean, noise, wave_params = _simulate_truth(np.random.default_rng(epi_ss))
+    counts = np.rint(mean * np.exp(noise)).astype(np.int64)
+    truth_reg = counts[:, :, :N_SEASON_WEEKS]
     vint_reg, nrev_reg = _simulate_reporting(truth_reg, holiday_week, np.random.default_rng(rep_ss))
     # series axis: the regions, then the whole jurisdiction (sum of the regions' counts)
     series = [*REGIONS, TOTAL_REGION]
-    truth = np.concatenate([truth_reg, truth_reg.sum(axis=1, keepdims=True)], axis=1)
+    counts = np.concatenate([counts, counts.sum(axis=1, keepdims=True)], axis=1)
+    truth = counts[:, :, :N_SEASON_WEEKS]
     vintages = np.concatenate([vint_reg, vint_reg.sum(axis=1, keepdims=True)], axis=1)
     n_rev = np.concatenate([nrev_reg, nrev_reg.max(axis=1, keepdims=True)], axis=1)
 
     week_ts = pd.to_datetime([d.isoformat() for d in week_endings])
-    n_q, n_s, n_w = truth.shape
-
-    # truth table
-    qq, ss, ww = np.meshgrid(np.arange(n_q), np.arange(n_s), np.arange(n_w), indexing="ij")
-    truth_table = pd.DataFrame(
-        {
-            "region": [series[k].id for k in ss.ravel()],
-            "quantity": [QUANTITIES[k] for k in qq.ravel()],
-            "week_ending": week_ts[ww.ravel()],
-            "value": truth.ravel(),
-        }
+    ahead_ts = pd.to_datetime(
+        [(LAST_WEEK_ENDING + dt.timedelta(weeks=k)).isoformat() for k in range(1, _N_AHEAD + 1)]
     )
-    truth_table = truth_table.sort_values(["region", "quantity", "week_ending"], ignore_index=True)
+    n_q, n_s, n_w = truth.shape
+    truth_table = _long_table(truth, series, week_ts)
+    truth_ahead = _long_table(counts[:, :, N_SEASON_WEEKS:], series, ahead_ts)
 
     # observations: every vintage published by the last issue date
     rows_q, rows_s, rows_w, rows_j = [], [], [], []
@@ -537,25 +592,30 @@ def generate_scenario(*, seed: int = DEFAULT_SEED) -> Scenario:
         ["region", "quantity", "week_ending", "reported"], ignore_index=True
     )
 
-    # forecasts: one (series, quantity, horizon, level) block per team and issue date
+    # forecasts: one (series, quantity, horizon, level) block per team and issue date; the
+    # joint draws of one issue date and quantity are shared by the teams
     malformed_team = next(k for k, t in enumerate(TEAMS) if t.malformed)
     malformed_issue = int(plan_rng.integers(8, 14))
     order = np.argsort([s.id for s in series], kind="stable")
     plans = [(k, i) for k, team in enumerate(TEAMS) for i in _issue_plan(team, plan_rng)]
+    row_of = {plan: f for f, plan in enumerate(plans)}
     values = np.empty((len(plans), n_s, n_q, len(HORIZONS), len(LEVELS)))
-    jitters = {
-        k: team.jitter * np.random.default_rng(team_ss[k]).standard_normal((N_ISSUES, n_s, n_q))
+    jitters = [
+        team.jitter
+        * np.random.default_rng(team_ss[k]).standard_normal((N_ISSUES, len(REGIONS), n_q))
         for k, team in enumerate(TEAMS)
-    }
-    for f, (k, i) in enumerate(plans):
+    ]
+    draw_rng = np.random.default_rng(draw_ss)
+    for i in range(N_ISSUES):
         t = _issue_week_index(i)
-        weeks_seen = np.arange(t + 1)
-        for pos, s_k in enumerate(order):
-            for q_k in range(n_q):
-                seen = vintages[q_k, s_k, weeks_seen, np.minimum(t - weeks_seen, 3)]
-                values[f, pos, q_k] = _project(
-                    seen, vintages[q_k, s_k], t, TEAMS[k], float(jitters[k][i, s_k, q_k])
-                )
+        for q_k in range(n_q):
+            paths = _noise_paths(q_k, draw_rng)
+            for k, team in enumerate(TEAMS):
+                f = row_of.get((k, i))
+                if f is None:
+                    continue
+                block = _forecast(team, mean[q_k], noise[q_k], t, q_k, paths, jitters[k][i, :, q_k])
+                values[f, :, q_k] = block[order]
     per_file = n_s * n_q * len(HORIZONS) * len(LEVELS)
     issued_ts = pd.to_datetime([issue_dates[i].isoformat() for _, i in plans])
     horizon_days = np.array([7 * h - 2 for h in HORIZONS])
@@ -626,7 +686,19 @@ def generate_scenario(*, seed: int = DEFAULT_SEED) -> Scenario:
             for q in QUANTITIES
         ],
         "teams": [
-            {"id": t.id, "name": t.name, "description": t.description, "behaviour": t.behaviour}
+            {
+                "id": t.id,
+                "name": t.name,
+                "description": t.description,
+                "behaviour": t.behaviour,
+                "expected_verdict": t.expected_verdict,
+                "design": {
+                    "spread_factor": t.spread,
+                    "median_factor": round(math.exp(t.bias), 4),
+                    "weeks_late": t.lag,
+                    "own_error_sd": t.jitter,
+                },
+            }
             for t in TEAMS
         ],
         "levels": [level_text(x) for x in LEVELS],
@@ -636,6 +708,10 @@ def generate_scenario(*, seed: int = DEFAULT_SEED) -> Scenario:
             "last_week_ending": week_endings[-1].isoformat(),
             "first_issued": issue_dates[0].isoformat(),
             "last_issued": issue_dates[-1].isoformat(),
+            "rated_weeks": {
+                "first_week_ending": week_endings[-RATING_WEEKS].isoformat(),
+                "last_week_ending": week_endings[-1].isoformat(),
+            },
         },
         "holiday": {
             "name": HOLIDAY_NAME,
@@ -644,12 +720,18 @@ def generate_scenario(*, seed: int = DEFAULT_SEED) -> Scenario:
         },
         "malformed_files": fault_notes,
         "wave": {
-            "model": "daily SEIR per region with light coupling; weekly negative-binomial noise",
+            "model": "complete count = round(m * exp(u)): m a smooth rise-and-fall curve per "
+            "region (deaths about a week behind admissions), u a log-scale AR(1) with a small "
+            "shock shared by the regions each week",
             "regions": [r.id for r in REGIONS],
-            "simulation_start": (
-                week_endings[0] - dt.timedelta(days=6 + _LEAD_IN_DAYS)
-            ).isoformat(),
-            **epi_params,
+            "peak_week_ending": {
+                q: {
+                    s.id: week_endings[int(np.argmax(truth[q_k, k]))].isoformat()
+                    for k, s in sorted(enumerate(series), key=lambda ks: ks[1].id)
+                }
+                for q_k, q in enumerate(QUANTITIES)
+            },
+            **wave_params,
         },
     }
     return Scenario(
@@ -659,4 +741,5 @@ def generate_scenario(*, seed: int = DEFAULT_SEED) -> Scenario:
         submissions=submissions,
         malformed=malformed,
         meta=meta,
+        truth_ahead=truth_ahead,
     )

@@ -14,7 +14,7 @@ The HTML part is a summary (headline, next week's outlook table, one chart, the 
 that points to the attached PDF for the rest. It is rendered from ``email.html.j2`` with
 Jinja2 (autoescaped) and its CSS (``email.css``) is inlined into ``style`` attributes by
 css-inline, keeping ``@media`` rules; no remote stylesheet is fetched and no ``data:`` URI is
-used, because Gmail (web) and desktop Outlook strip them (CONVENTIONS section 1). The layout
+used, because Gmail (web) and desktop Outlook strip them (docs/conventions.md §1). The layout
 is one 600 px column of ``role="presentation"`` tables.
 
 Every number shown was formatted in :mod:`forebrief.facts`; this module only selects texts.
@@ -57,7 +57,7 @@ __all__ = [
     "render_email_html",
 ]
 
-#: Width of the e-mail's one column, in CSS pixels (CONVENTIONS section 1).
+#: Width of the e-mail's one column, in CSS pixels (docs/conventions.md §1).
 EMAIL_WIDTH = 600
 #: Width inside the column's 24 px side padding: the chart is shown at this width.
 CONTENT_WIDTH = 552

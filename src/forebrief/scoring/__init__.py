@@ -28,7 +28,7 @@ from forebrief.scoring.interval import (
     wis_parts,
 )
 from forebrief.scoring.point import absolute_error, sign_bias
-from forebrief.scoring.relative import RelativeSkill, relative_skill
+from forebrief.scoring.relative import RelativeSkill, relative_skill, relative_skill_pairwise
 
 __all__ = [
     "CentralIntervals",
@@ -48,6 +48,7 @@ __all__ = [
     "quantile_score",
     "relative_entropy",
     "relative_skill",
+    "relative_skill_pairwise",
     "sign_bias",
     "wis_parts",
 ]

@@ -36,7 +36,7 @@ from forebrief.scoring.classical import (
     performance_weights,
 )
 from forebrief.scoring.interval import interval_coverage, wis_parts
-from forebrief.scoring.relative import relative_skill
+from forebrief.scoring.relative import relative_skill_pairwise
 
 __all__ = [
     "BY_ITEM_COLUMNS",
@@ -291,6 +291,61 @@ def _interval_scores(wide: WindowTable, scale: str) -> dict[str, np.ndarray]:
     return out
 
 
+class _CommonLevels:
+    """WIS of each forecast on the levels it shares with another level pattern.
+
+    Rows are aligned with the by-item table; ``pattern`` numbers each row's level set and
+    ``median`` says which patterns include 0.5. :meth:`on_common` gives, for the rows of
+    pattern ``p``, the WIS on levels(p) & levels(r) (Bracher et al. 2021, PLOS Comput Biol
+    17(2): e1008618: WIS from different quantile sets are not comparable, so a pair is
+    compared on the levels both give). Each (p, r) is computed once for all rows of p and
+    cached; when levels(p) lie inside levels(r) it is the rows' own WIS. Cost per (p, r):
+    O(rows of p x common levels).
+    """
+
+    def __init__(
+        self, wide: WindowTable, scale: str, order: np.ndarray, wis: np.ndarray
+    ) -> None:
+        values = wide.values[order]
+        self.levels = wide.levels
+        self.y = transform_scale(
+            wide.heads["observed"].to_numpy(dtype=float)[order], scale,
+            "the weighted interval score")
+        self.q = transform_scale(values, scale, "the weighted interval score")
+        self.wis = wis
+        present = ~np.isnan(values)
+        if len(values):
+            self.patterns, self.pattern = _level_patterns(present)
+        else:
+            self.patterns = np.zeros((0, self.levels.size), dtype=bool)
+            self.pattern = np.zeros(0, dtype=np.int64)
+        mid = level_index(self.levels, 0.5)
+        self.median = (self.patterns[:, mid] if mid is not None
+                       else np.zeros(len(self.patterns), dtype=bool))
+        order_p = np.argsort(self.pattern, kind="stable")
+        counts = np.bincount(self.pattern, minlength=len(self.patterns))
+        starts = np.cumsum(counts) - counts
+        self.rows = np.split(order_p, starts[1:])
+        # each row's place among the rows of its pattern
+        self.position = np.empty(len(self.pattern), dtype=np.int64)
+        self.position[order_p] = np.arange(order_p.size) - starts[self.pattern[order_p]]
+        self._cache: dict[tuple[int, int], np.ndarray] = {}
+
+    def on_common(self, p: int, r: int) -> np.ndarray:
+        """WIS of the rows of pattern p (in :attr:`rows` order) on levels(p) & levels(r)."""
+        key = (p, r)
+        if key not in self._cache:
+            rows = self.rows[p]
+            both = self.patterns[p] & self.patterns[r]
+            if np.array_equal(both, self.patterns[p]):
+                self._cache[key] = self.wis[rows]
+            else:
+                cols = np.flatnonzero(both)
+                parts = wis_parts(self.y[rows], self.q[np.ix_(rows, cols)], self.levels[cols])
+                self._cache[key] = parts.wis
+        return self._cache[key]
+
+
 @dataclass(frozen=True)
 class ClassicalArrays:
     """The Classical Model view of a window: CM quantiles and each item's intrinsic range.
@@ -366,9 +421,18 @@ def _classical(
 
 
 def _aggregate(
-    items: pd.DataFrame, keys: list[str], settings: ScoreSettings, weight_keys: list[str]
+    items: pd.DataFrame,
+    keys: list[str],
+    settings: ScoreSettings,
+    weight_keys: list[str],
+    *,
+    common: _CommonLevels,
 ) -> pd.DataFrame:
-    """Pool item scores into one row per group of ``keys`` (which end with 'model')."""
+    """Pool item scores into one row per group of ``keys`` (which end with 'model').
+
+    A named baseline is scored but takes no weight: its ``weight`` is nan and the other
+    models' weights are normalised without it (it is the yardstick, not a member).
+    """
     n_bins = len(settings.levels) + 1
     g_codes, n_g = group_codes([items[k] for k in keys])
     first = np.full(n_g, -1, dtype=np.int64)
@@ -397,18 +461,23 @@ def _aggregate(
         out[col] = mean_of(col)
     out["within_50"] = mean_of("in_50")
     out["within_90"] = mean_of("in_90")
-    wg, _ = group_codes([out[k] for k in weight_keys])
+    wg, n_wg = group_codes([out[k] for k in weight_keys])
+    member = (out["model"] != settings.baseline).to_numpy()
+    # weights over the members only: the baseline's row gets a group of its own, and the
+    # weight it would get there is dropped
     w = performance_weights(
         out["calibration"].to_numpy(),
         out["information"].to_numpy(),
         alpha=settings.alpha,
-        groups=wg,
+        groups=np.where(member, 2 * wg, 2 * wg + 1),
     )
-    out["weight"] = w.weight
+    has_member = np.bincount(wg[member], minlength=n_wg) > 0
+    fallback = w.equal_fallback[2 * wg] & has_member[wg]
+    out["weight"] = np.where(member, w.weight, np.nan)
     out["passes_cutoff"] = w.passed
-    out["equal_weights"] = w.equal_fallback[wg]
+    out["equal_weights"] = fallback
     out["relative_wis"] = _relative(items, keys, weight_keys, out, settings.baseline,
-                                    out_rows=g_codes)
+                                    out_rows=g_codes, common=common)
     for j in range(n_bins):
         out[f"bin_{j}"] = cm_counts[:, j]
     cols = [*keys[:-1], "model"]
@@ -426,19 +495,30 @@ def _relative(
     baseline: str | None,
     *,
     out_rows: np.ndarray,
+    common: _CommonLevels,
 ) -> np.ndarray:
     """Relative WIS per model within each group (Cramer et al. 2022, PNAS, Methods).
 
-    ``keys`` are ``group_keys`` plus 'model'; ``out_rows`` gives the row of ``out`` that
-    pools each item row. Codes for groups, models and items are computed once for all
-    rows; the loop runs over groups only. O(rows log rows + sum over groups of m^2 i).
+    Like for like: on each common item a pair (a, b) is compared on the levels both give,
+    so theta_ab = mean WIS of a / mean WIS of b over their common items, each WIS on the
+    common levels (Bracher et al. 2021, PLOS Comput Biol 17(2): e1008618, warn that WIS on
+    different quantile sets are not comparable). An item where the pair has no common
+    median is not compared (a pair with no such item is left out of both geometric means).
+    Pairs on the same level pattern reuse each model's own WIS; with several patterns in a
+    group, one (m x i) @ (i x m) product per pattern pair (p, r) sums a's WIS on the common
+    levels over the items where a gives p and b gives r. ``keys`` are ``group_keys`` plus
+    'model'; ``out_rows`` gives the row of ``out`` that pools each item row. The loop runs
+    over groups and pattern pairs only.
+    O(rows log rows + sum over groups of (1 + pattern pairs) m^2 i).
     """
     rel = np.full(len(out), np.nan)
     if baseline is None:
         return rel
-    scored = items["wis"].notna().to_numpy()
+    # only forecasts with a median take part: a pair's common levels hold 0.5 iff both do
+    scored = items["wis"].notna().to_numpy() & common.median[common.pattern]
     if not scored.any():
         return rel
+    idx = np.flatnonzero(scored)
     sub = items.loc[scored]
     gcode, _ = group_codes([sub[k] for k in group_keys])
     item_code, _ = group_codes(
@@ -446,6 +526,7 @@ def _relative(
     )
     model_text = sub["model"].to_numpy().astype(str)
     wis = sub["wis"].to_numpy(dtype=float)
+    pattern = common.pattern[idx]
     rows_out = out_rows[scored]
     # the rows of each group, in table order
     order = np.argsort(gcode, kind="stable")
@@ -459,10 +540,34 @@ def _relative(
                                           return_inverse=True)
         rank = np.empty(uniq.size, dtype=np.int64)
         rank[np.argsort(first_at, kind="stable")] = np.arange(uniq.size)
-        mat = np.full((models.size, uniq.size), np.nan)
-        mat[mcode, rank[icode]] = wis[sel]
+        col = rank[icode]
+        shape = (models.size, uniq.size)
+        mask = np.zeros(shape)
+        mask[mcode, col] = 1.0
+        n_common = mask @ mask.T  # common[a, b]: the number of items a and b share
+        here = pattern[sel]
+        kinds = np.unique(here)
+        if kinds.size == 1:
+            # own[a, b]: a's WIS summed over the items a and b share
+            filled = np.zeros(shape)
+            filled[mcode, col] = wis[sel]
+            own = filled @ mask.T
+        else:
+            on = []
+            for p in kinds:
+                hit = np.zeros(shape)
+                hit[mcode[here == p], col[here == p]] = 1.0
+                on.append(hit)
+            own = np.zeros((models.size, models.size))
+            for p in kinds:
+                of_p = here == p
+                at = common.position[idx[sel[of_p]]]
+                for j, r in enumerate(kinds):
+                    filled = np.zeros(shape)
+                    filled[mcode[of_p], col[of_p]] = common.on_common(int(p), int(r))[at]
+                    own += filled @ on[j].T
         b = int(np.flatnonzero(models == baseline)[0])
-        skill = relative_skill(mat, baseline=b)
+        skill = relative_skill_pairwise(own, own.T, n_common, baseline=b)
         rel[rows_out[sel]] = skill.relative[mcode]
     return rel
 
@@ -490,11 +595,12 @@ def score_forecasts(
     items["information"] = info
     for k, v in scores.items():
         items[k] = v
-    items = (
-        items[list(BY_ITEM_COLUMNS)]
-        .sort_values(["quantity", "horizon", "region", "week_ending", "model"], kind="stable")
-        .reset_index(drop=True)
+    items = items[list(BY_ITEM_COLUMNS)].sort_values(
+        ["quantity", "horizon", "region", "week_ending", "model"], kind="stable"
     )
+    common = _CommonLevels(wide, settings.scale, items.index.to_numpy(),
+                           items["wis"].to_numpy(dtype=float))
+    items = items.reset_index(drop=True)
     notes: list[str] = []
     if n_superseded:
         notes.append(
@@ -529,13 +635,15 @@ def score_forecasts(
         )
     bins_sorted = items["bin"].to_numpy().copy()
     by_model = _aggregate(
-        items, ["quantity", "horizon", "model"], settings, ["quantity", "horizon"]
+        items, ["quantity", "horizon", "model"], settings, ["quantity", "horizon"],
+        common=common,
     )
     by_region = _aggregate(
         items,
         ["quantity", "horizon", "region", "model"],
         settings,
         ["quantity", "horizon", "region"],
+        common=common,
     )
     fallback = by_model.loc[by_model["equal_weights"], ["quantity", "horizon"]].drop_duplicates()
     for q, h in fallback.itertuples(index=False, name=None):
