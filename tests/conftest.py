@@ -2,13 +2,13 @@
 
 from __future__ import annotations
 
-from collections.abc import Callable, Sequence
+from collections.abc import Callable
 
 import pytest
 
 from forebrief.cli import main
 
-Run = Callable[[Sequence[object]], tuple[int, str, str]]
+Run = Callable[..., tuple[int, str, str]]
 
 
 @pytest.fixture
@@ -19,7 +19,10 @@ def run(capsys: pytest.CaptureFixture[str]) -> Run:
     another kind of ``run`` define their own fixture of that name.
     """
 
-    def call(argv: Sequence[object]) -> tuple[int, str, str]:
+    def call(*args: object) -> tuple[int, str, str]:
+        # run(["score", ...]) or run("score", ...): a list, or the arguments one by one
+        first = args[0] if len(args) == 1 else None
+        argv = first if isinstance(first, list | tuple) else args
         try:
             code = main([str(a) for a in argv])
         except SystemExit as exc:

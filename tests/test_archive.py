@@ -44,6 +44,7 @@ import pytest
 
 import forebrief
 from forebrief import archive as arc
+from forebrief.cli import main
 from forebrief.errors import ArchiveError
 
 pytestmark = pytest.mark.slow
@@ -102,6 +103,21 @@ def finish(proc: subprocess.Popen[str], what: str, timeout: float = 300) -> tupl
     out, err = proc.communicate(timeout=timeout)
     assert proc.returncode == 0, f"{what} failed ({proc.returncode}):\n{out}\n{err}"
     return out, err
+
+
+@pytest.fixture
+def run(capsys: pytest.CaptureFixture[str]) -> Run:
+    """Call ``main(argv)`` in this process (arguments one by one); return (exit code, stdout, stderr)."""
+
+    def call(*argv: object) -> tuple[int, str, str]:
+        try:
+            code = main([str(a) for a in argv])
+        except SystemExit as exc:  # argparse usage errors
+            code = int(exc.code) if exc.code is not None else 0
+        out, err = capsys.readouterr()
+        return code, out, err
+
+    return call
 
 
 # The crash driver: one weekly run (record_briefing) whose write is forked. Before the real

@@ -380,10 +380,14 @@ def test_reliability_chart_places_every_model(
     # the scores the next-week weights were set from (per horizon), when the facts carry them
     rated = {w["model"]: w for w in facts.weights if w["quantity"] == q and w["horizon"] == h1}
     for v in _verdicts(facts, q):
+        w = rated.get(v.model, {})
+        if v.n_items == 0 and w.get("calibration") is None:
+            # nothing scored yet (a new team): no dot to place
+            assert not _by_gid(ax, f"model:{v.model}")
+            continue
         dot = _one(ax, f"model:{v.model}")
         assert isinstance(dot, PathCollection)
         x, y = dot.get_offsets()[0]
-        w = rated.get(v.model, {})
         cal = w.get("calibration") if w.get("calibration") is not None else v.calibration
         info = w.get("information") if w.get("information") is not None else v.information
         assert x == max(cal, charts.CAL_FLOOR)
@@ -451,7 +455,7 @@ def test_reliability_labels_stay_clear_in_the_exported_layout(
     leaders = {str(a.get_gid()): a for a in ax.texts if str(a.get_gid()).startswith("leader:")}
     assert labels
     assert len(dots) == len(labels)
-    assert leaders  # the demo's crowded corner needs some
+    # leaders are drawn only where the corner is crowded (not in every scenario)
     items = list(labels.items())
     for i, (ga, a) in enumerate(items):
         for gb, b in items[i + 1 :]:

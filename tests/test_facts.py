@@ -338,6 +338,41 @@ def test_the_demo_teams_earn_the_verdicts_they_were_designed_for(demo_run: Brief
 
 
 @pytest.mark.slow
+def test_the_headline_direction_agrees_with_the_scenario_s_next_week(
+    demo_run: BriefingRun,
+) -> None:
+    # the scenario's truth is known: the complete count of the last week and of the week
+    # after it (never published); the briefing's direction for each series must agree with it
+    # wherever the true change is outside the 5% "about the same" band
+    from forebrief.facts import DIRECTION_BAND
+
+    scenario = generate_scenario()
+    truth = scenario.truth.set_index(["region", "quantity", "week_ending"])["value"]
+    ahead = scenario.truth_ahead.set_index(["region", "quantity", "week_ending"])["value"]
+    checked = agreed = 0
+    for o in demo_run.facts.outlook:
+        if o.horizon != 1:
+            continue
+        last = float(truth[(o.region, o.quantity, pd.Timestamp(o.last_week))])
+        nxt = float(ahead[(o.region, o.quantity, pd.Timestamp(o.week_ending))])
+        if abs(nxt - last) < 2 * DIRECTION_BAND * last:
+            continue  # a small true change: either word could be fair
+        checked += 1
+        agreed += o.direction == ("up" if nxt > last else "down")
+        # the nowcast of the last week is close to its complete count
+        if o.last_value_nowcast is not None and o.is_total:
+            assert abs(o.last_value_nowcast - last) <= 0.10 * last
+    assert checked >= 6
+    assert agreed == checked
+    summary = demo_run.facts.summary["focus"]
+    focus = next(o for o in demo_run.facts.outlook
+                 if (o.region, o.quantity, o.horizon)
+                 == (summary["region"], summary["quantity"], summary["horizon"]))
+    assert focus.is_total and focus.direction == "down"  # the wave falls, and the text says so
+    assert "down from about" in demo_run.narrative.headline[0]
+
+
+@pytest.mark.slow
 def test_the_cautions_are_the_standard_ones(demo_run: BriefingRun) -> None:
     assert demo_run.facts.cautions == CAUTIONS
     joined = " ".join(CAUTIONS)

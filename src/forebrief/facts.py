@@ -622,6 +622,19 @@ def _verdicts(cfg: BriefingConfig, scores: pd.DataFrame, weights: pd.DataFrame,
             n_evidence=v.n_evidence, n_effective=round(v.n_effective, 1),
             pattern_horizon=v.pattern_horizon,
         ))
+    # members with no scored (settled) item yet still appear, as not yet rated
+    seen = {(v.model, v.quantity) for v in out}
+    for r in weights.drop_duplicates(["model", "quantity"]).itertuples(index=False):
+        if (r.model, r.quantity) in seen or r.quantity not in set(s["quantity"]):
+            continue
+        out.append(ModelVerdict(
+            model=str(r.model), quantity=str(r.quantity),
+            quantity_name=cfg.quantity_info(str(r.quantity)).name, verdict="not yet rated",
+            explanation="none of its forecasts has a settled target week to judge yet",
+            n_items=0, calibration=None, information=None, weight=0.0, weight_text="0.00",
+            relative_wis=None, relative_wis_text="n/a", outside_90=0,
+            expected_outside_90=0.0, below_median=0, bins=tuple(0 for _ in p),
+        ))
     order = {v: i for i, v in enumerate(VERDICTS)}
     out.sort(key=lambda v: (v.quantity, order[v.verdict], -v.weight, v.model))
     return out
@@ -1053,10 +1066,8 @@ def _headline_entry(cfg: BriefingConfig, h: Mapping[str, Any],
     out = dict(h)
     out["label"] = label
     out["quantity_name"] = cfg.quantity_info(str(h.get("quantity"))).name
-    out["sentence"] = (f"The figures for {out['quantity_name'].lower()} come from the "
-                       f"{label}: {h.get('reason', '')}").rstrip(": ")
-    if not out["sentence"].endswith("."):
-        out["sentence"] += "."
+    reason = str(h.get("reason") or f"the {label} is used").strip().rstrip(".")
+    out["sentence"] = f"{out['quantity_name']}: {reason}."
     return out
 
 

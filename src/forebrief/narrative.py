@@ -98,7 +98,14 @@ def _headline(facts: BriefingFacts) -> tuple[str, ...]:
     else:
         out.append("No combined forecast could be made for this week.")
     risk = _row(facts, summ.get("top_risk"))
-    if risk is not None and risk.p_above_threshold_text is not None:
+    if (risk is not None and risk.p_above_threshold is not None
+            and risk.p_above_threshold_text is not None and risk.p_above_threshold < 0.05):
+        out.append(
+            f"No region is expected to pass its {risk.threshold_label} in the next two weeks: "
+            f"the highest chance, {risk.p_above_threshold_text}, is in {risk.region_name} "
+            f"(the week ending {risk.week_ending_text})."
+        )
+    elif risk is not None and risk.p_above_threshold_text is not None:
         out.append(
             f"{risk.region_name} has the highest chance of passing its {risk.threshold_label} "
             f"of {risk.threshold_text} {_unit(risk)}: {risk.p_above_threshold_text} in the "
@@ -347,7 +354,11 @@ def _methods_section(facts: BriefingFacts) -> Section:
         f"quantiles over the last {m.get('window_weeks')} weeks of observed targets give a "
         "calibration score (a test of whether observations fall in each range as often as "
         "they should) and an information score (how narrow its ranges are). 'Reliable' means "
-        f"the calibration score passes the test at the {m.get('verdict_test_level')} level.",
+        f"the calibration test passes at the {m.get('verdict_test_level')} level, counting "
+        "each region and target week once however many weeks ahead it was forecast, not "
+        "counting the jurisdiction total on top of its regions, and allowing for regions that "
+        "move together; a one-sided pattern is named a bias before it is called "
+        "overconfidence.",
         "The combined forecast is a linear pool (a mixture) of the models' forecast "
         "distributions, weighted by calibration times information, with models below a "
         f"calibration cutoff ({alpha_text}) left out. Accuracy is the weighted interval score, "
