@@ -368,7 +368,8 @@ def test_the_headline_direction_agrees_with_the_scenario_s_next_week(
     focus = next(o for o in demo_run.facts.outlook
                  if (o.region, o.quantity, o.horizon)
                  == (summary["region"], summary["quantity"], summary["horizon"]))
-    assert focus.is_total and focus.direction == "down"  # the wave falls, and the text says so
+    assert focus.is_total
+    assert focus.direction == "down"  # the wave falls, and the text says so
     assert "down from about" in demo_run.narrative.headline[0]
 
 

@@ -194,9 +194,9 @@ def test_pdf_text_carries_the_headline_numbers(page_texts: list[str], facts: Any
     assert row.median_text in first
     assert row.range90_text in first
     assert "In brief" in first
-    # the lead quantity's outlook table and the total's fan chart caption share page 1
-    assert f"{row.quantity_name} ({row.unit}): combined forecast by region" in first
-    assert f"{row.quantity_name}: outlook for {row.region_name}." in first
+    # the lead quantity's outlook table is on page 1, the total's fan chart by page 2
+    assert f"{row.quantity_name} ({row.unit}): {row.method_label} by region" in first
+    assert f"{row.quantity_name}: outlook for {row.region_name}." in " ".join(page_texts[:2])
 
 
 def test_pdf_shows_every_caution(page_texts: list[str], facts: Any) -> None:

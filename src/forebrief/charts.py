@@ -334,6 +334,12 @@ def _fan_handles(
                 else "observed, provisional\n(may be revised)",
             )
         )
+    if provisional and any(any(v is not None for v in (h.get("nowcast") or []))
+                           for h in (facts.history or {}).values()):
+        handles.append(
+            Line2D([], [], color=PALETTE["observed"], marker="D", ms=3.6, lw=1.0, alpha=0.7,
+                   label="expected once late reports\nare in (90% range)")
+        )
     handles += [
         Line2D([], [], color=c, marker="o", ms=3.5, lw=1.8, label="combined forecast, median"),
         Patch(
@@ -1837,7 +1843,9 @@ def _fan_caption(facts: BriefingFacts, row: OutlookRow) -> str:
     )
     return (
         f"Black: observed {_lower_first(row.quantity_name)} per week (hollow points: "
-        "provisional weeks, likely to be revised). Blue: the combined forecast, its median "
+        "provisional weeks, likely to be revised; grey diamonds with bars: the count each is "
+        "expected to reach once late reports are in, with its 90% range). Blue: the "
+        f"{row.method_label or 'combined forecast'}, its median "
         "with the 50% (darker) and 90% (lighter) ranges. Dashed: the baseline, which "
         f"repeats the latest week.{line} Dotted: the issue date, {facts.issued_text}; data "
         f"as of {facts.data_as_of_text}."

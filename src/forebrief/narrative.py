@@ -57,7 +57,13 @@ def _last_text(o: OutlookRow) -> str:
     return f"{o.last_value_text}{prov}"
 
 
-def _change_phrase(o: OutlookRow) -> str:
+def _change_phrase(o: OutlookRow, *, short: bool = False) -> str:
+    if o.last_value_nowcast_text is not None and short:
+        verb = {"up": "up from", "down": "down from",
+                "about the same": "about the same as"}.get(o.direction, "against")
+        return (f"{verb} about {o.last_value_nowcast_text} expected for the week ending "
+                f"{o.last_week_text} once late reports are in ({o.last_value_text} reported so "
+                "far)")
     if o.last_value_nowcast_text is not None:
         # compare with the week's expected complete count, not with its provisional report
         verb = {"up": "up from", "down": "down from",
@@ -92,7 +98,8 @@ def _headline(facts: BriefingFacts) -> tuple[str, ...]:
         caveat = _coverage_caveat(facts, focus.quantity)
         out.append(
             f"{scope}, {_unit(focus)} are expected to be about {focus.median_text} in the week "
-            f"ending {focus.week_ending_text}, {_change_phrase(focus)}, with {_range90(focus)}"
+            f"ending {focus.week_ending_text}, {_change_phrase(focus, short=True)}, with "
+            f"{_range90(focus)}"
             f"{caveat}."
         )
     else:

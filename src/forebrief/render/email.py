@@ -259,6 +259,7 @@ def _outlook_tables(facts: BriefingFacts) -> list[dict[str, Any]]:
                         "is_total": o.is_total,
                         "last_value_text": o.last_value_text,
                         "last_provisional": o.last_provisional,
+                        "last_nowcast_text": o.last_value_nowcast_text,
                         "median_text": o.median_text,
                         "range90_text": o.range90_text,
                         "chance_text": o.p_above_threshold_text or "no alert line set",

@@ -174,6 +174,7 @@ def _outlook_tables(facts: BriefingFacts) -> list[dict[str, Any]]:
                     "is_total": r["is_total"],
                     "last_value_text": lead.last_value_text,
                     "last_provisional": lead.last_provisional,
+                    "last_nowcast_text": lead.last_value_nowcast_text,
                     "cells": [cells[h] for h in horizons if h in cells],
                     "threshold_cell": (
                         f"{thr} (line: {lead.threshold_text})" if thr else "no alert line set"
@@ -183,7 +184,8 @@ def _outlook_tables(facts: BriefingFacts) -> list[dict[str, Any]]:
         tables.append(
             {
                 "quantity": q["id"],
-                "caption": f"{q['name']} ({q['unit']}): combined forecast by region",
+                "caption": f"{q['name']} ({q['unit']}): "
+                f"{(rows_q[0].method_label if rows_q else '') or 'combined forecast'} by region",
                 "horizons": [
                     {"label": _horizon_label(h), "week": f"week ending {weeks[h]}"}
                     for h in horizons
