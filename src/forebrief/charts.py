@@ -303,6 +303,12 @@ def _baseline_label(facts: BriefingFacts) -> str:
 _BAND_ALPHA = {90: 0.2, 50: 0.45}
 
 
+def _headline_label(facts: BriefingFacts) -> str:
+    """The outlook's combination in words (one per briefing unless quantities differ)."""
+    labels = {o.method_label for o in facts.outlook if o.method_label}
+    return labels.pop() if len(labels) == 1 else "combined forecast"
+
+
 def _fan_handles(
     facts: BriefingFacts,
     *,
@@ -341,7 +347,8 @@ def _fan_handles(
                    label="expected once late reports\nare in (90% range)")
         )
     handles += [
-        Line2D([], [], color=c, marker="o", ms=3.5, lw=1.8, label="combined forecast, median"),
+        Line2D([], [], color=c, marker="o", ms=3.5, lw=1.8,
+               label=f"{_headline_label(facts)}, median"),
         Patch(
             facecolor=mcolors.to_rgba(c, _BAND_ALPHA[50]), lw=0, label="50% range (1 in 2 chance)"
         ),
