@@ -312,8 +312,8 @@ def test_every_verdict_follows_from_its_items(demo_run: BriefingRun) -> None:
         assert v.outside_90 == int(((first == 0) | (first == P_CM.size - 1)).sum())
         assert v.below_median == int((first < 3).sum())
         assert v.expected_outside_90 == pytest.approx(0.1 * len(first), abs=0.05)
-        rated = part[[f"bin_{j}" for j in range(P_CM.size)]].to_numpy().sum() >= (
-            cfg.min_items * len(part))
+        rated = len(part) > 0 and part[[f"bin_{j}" for j in range(P_CM.size)]].to_numpy(
+        ).sum() >= cfg.min_items * len(part)  # a team with no settled target is not rated
         assert (v.verdict == "not yet rated") == (not rated), v.model
         if rated and v.calibration is not None:
             assert (v.verdict == "reliable") == (v.calibration >= 0.05), v.model

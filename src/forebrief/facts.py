@@ -634,6 +634,7 @@ def _verdicts(cfg: BriefingConfig, scores: pd.DataFrame, weights: pd.DataFrame,
             n_items=0, calibration=None, information=None, weight=0.0, weight_text="0.00",
             relative_wis=None, relative_wis_text="n/a", outside_90=0,
             expected_outside_90=0.0, below_median=0, bins=tuple(0 for _ in p),
+            pattern_horizon=min(cfg.horizons),
         ))
     order = {v: i for i, v in enumerate(VERDICTS)}
     out.sort(key=lambda v: (v.quantity, order[v.verdict], -v.weight, v.model))
