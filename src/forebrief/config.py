@@ -17,7 +17,7 @@ from pathlib import Path
 from typing import Any, Literal
 
 from forebrief.errors import ConfigError
-from forebrief.schema import CM_LEVELS
+from forebrief.schema import CM_LEVELS, COMBINATIONS
 
 __all__ = [
     "BriefingConfig",
@@ -396,8 +396,7 @@ def _parse_scoring(s: Mapping[str, Any], cfg: dict[str, Any], source: Path | Non
 
 
 #: Combinations the headline may use ("auto" applies the rule of :mod:`forebrief.compare`).
-HEADLINE_METHODS: tuple[str, ...] = ("weighted_pool", "equal_pool", "quantile_median",
-                                     "recalibrated_pool")
+HEADLINE_METHODS: tuple[str, ...] = COMBINATIONS
 
 
 def check_headline(value: Any, *, key: str = "ensemble.headline",

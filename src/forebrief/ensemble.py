@@ -49,7 +49,7 @@ from forebrief.distributions import (
 from forebrief.errors import ConfigError
 from forebrief.observations import observations_as_of
 from forebrief.recalibration import beta_levels, fit_beta, pool_pit
-from forebrief.schema import CM_LEVELS, Background, check_choice, cm_probabilities
+from forebrief.schema import CM_LEVELS, COMBINATIONS, Background, check_choice, cm_probabilities
 from forebrief.scoring.classical import bin_index, calibration_score, information_score
 from forebrief.scoring.engine import (
     ClassicalArrays,
@@ -69,12 +69,7 @@ __all__ = [
     "history_scores",
 ]
 
-METHODS: tuple[str, ...] = (
-    "weighted_pool",
-    "equal_pool",
-    "quantile_median",
-    "recalibrated_pool",
-)
+METHODS: tuple[str, ...] = COMBINATIONS
 ENSEMBLE_COLUMNS: tuple[str, ...] = (
     "method",
     "region",

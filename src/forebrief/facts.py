@@ -1083,12 +1083,11 @@ def _history(cfg: BriefingConfig, known: pd.DataFrame,
     if known.empty:
         return out
     now = {}
-    if nowcast is not None and not nowcast.empty:
-        for r in nowcast.itertuples(index=False):
-            if not bool(r.complete) and math.isfinite(float(r.nowcast)):
-                now[(str(r.region), str(r.quantity), pd.Timestamp(r.week_ending))] = (
-                    round_count(float(r.nowcast)), round_count(float(r.nowcast_low90)),
-                    round_count(float(r.nowcast_high90)))
+    for key, pos in _nowcast_map(nowcast).items():
+        r = nowcast.iloc[pos] if nowcast is not None else None
+        if r is not None:
+            now[key] = (round_count(float(r["nowcast"])), round_count(float(r["nowcast_low90"])),
+                        round_count(float(r["nowcast_high90"])))
     start = known["week_ending"].max() - pd.Timedelta(days=7 * (weeks - 1))
     recent = known.loc[known["week_ending"] >= start].sort_values("week_ending")
     for (region, quantity), part in recent.groupby(["region", "quantity"], sort=True):

@@ -57,20 +57,17 @@ def _last_text(o: OutlookRow) -> str:
     return f"{o.last_value_text}{prov}"
 
 
+_FROM = {"up": "up from", "down": "down from", "about the same": "about the same as"}
+
+
 def _change_phrase(o: OutlookRow, *, short: bool = False) -> str:
-    if o.last_value_nowcast_text is not None and short:
-        verb = {"up": "up from", "down": "down from",
-                "about the same": "about the same as"}.get(o.direction, "against")
-        return (f"{verb} about {o.last_value_nowcast_text} expected for the week ending "
-                f"{o.last_week_text} once late reports are in ({o.last_value_text} reported so "
-                "far)")
     if o.last_value_nowcast_text is not None:
-        # compare with the week's expected complete count, not with its provisional report
-        verb = {"up": "up from", "down": "down from",
-                "about the same": "about the same as"}.get(o.direction, "against")
-        return (f"{verb} about {o.last_value_nowcast_text} expected for the week ending "
-                f"{o.last_week_text} once late reports are in (9 in 10 chance: "
-                f"{o.last_value_nowcast_range90_text}; {o.last_value_text} reported so far)")
+        # compare with the week's expected complete count, not with its provisional report;
+        # the short form (the headline) leaves the nowcast's range to the outlook paragraph
+        spread = "" if short else f"9 in 10 chance: {o.last_value_nowcast_range90_text}; "
+        return (f"{_FROM.get(o.direction, 'against')} about {o.last_value_nowcast_text} "
+                f"expected for the week ending {o.last_week_text} once late reports are in "
+                f"({spread}{o.last_value_text} reported so far)")
     if o.direction == "up":
         return f"up from {_last_text(o)} in the week ending {o.last_week_text}"
     if o.direction == "down":

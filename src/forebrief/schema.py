@@ -44,6 +44,15 @@ ITEM_KEY: tuple[str, ...] = ("region", "quantity", "week_ending", "horizon")
 #: Classical Model levels (5, 25, 50, 75, 95 %): bins with p = (.05, .20, .25, .25, .20, .05).
 CM_LEVELS: tuple[float, ...] = (0.05, 0.25, 0.5, 0.75, 0.95)
 
+#: The combinations an ensemble build makes, in table order (forebrief.ensemble); any of them
+#: can head the briefing ([ensemble] headline).
+COMBINATIONS: tuple[str, ...] = (
+    "weighted_pool",
+    "equal_pool",
+    "quantile_median",
+    "recalibrated_pool",
+)
+
 #: The 23 levels most public-health forecast collections ask for (common practice, no source).
 STANDARD_LEVELS: tuple[float, ...] = (
     0.01,
