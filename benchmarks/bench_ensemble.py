@@ -21,9 +21,9 @@ import numpy as np
 import pandas as pd
 from scipy.stats import norm
 
-from forebrief.backtest import backtest
-from forebrief.ensemble import EnsembleSettings, build_ensemble
-from forebrief.schema import STANDARD_LEVELS
+from forebrief.tables.backtest import backtest
+from forebrief.tables.ensemble import EnsembleSettings, build_ensemble
+from forebrief.tables.schema import STANDARD_LEVELS
 
 FIRST_ISSUE = pd.Timestamp("2027-01-04")  # a Monday; targets end on Saturdays
 

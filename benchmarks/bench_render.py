@@ -25,13 +25,13 @@ from collections.abc import Callable, Mapping
 from pathlib import Path
 from typing import Any, TypeVar
 
-from forebrief.charts import briefing_figures
-from forebrief.config import load_config
+from forebrief.app.config import load_config
+from forebrief.app.pipeline import record_briefing
 from forebrief.demo import generate_scenario, write_scenario
-from forebrief.facts import BriefingFacts
-from forebrief.narrative import build_narrative
-from forebrief.pipeline import record_briefing
-from forebrief.render import render_html, render_pdf
+from forebrief.report.charts import briefing_figures
+from forebrief.report.facts import BriefingFacts
+from forebrief.report.narrative import build_narrative
+from forebrief.report.render import render_html, render_pdf
 
 T = TypeVar("T")
 CREATED = dt.datetime(2026, 11, 30, tzinfo=dt.UTC)

@@ -66,7 +66,7 @@ def make_data(rows: int) -> tuple[Path, Path, str]:
     import pandas as pd
     from scipy.stats import norm
 
-    from forebrief.schema import STANDARD_LEVELS
+    from forebrief.tables.schema import STANDARD_LEVELS
 
     n_models, n_rows = _plan(rows)
     DATA.mkdir(parents=True, exist_ok=True)
@@ -223,9 +223,9 @@ t0 = time.perf_counter()
 import pandas as pd
 from forebrief.io.outputs import write_tables
 from forebrief.io.tables import read_raw_table, resolve_inputs
-from forebrief.scoring.engine import ScoreSettings, score_forecasts
-from forebrief.validate import cross_check, validate_forecasts, validate_observations
-from forebrief.workflow import Inputs
+from forebrief.tables.scoring import ScoreSettings, score_forecasts
+from forebrief.tables.validate import cross_check, validate_forecasts, validate_observations
+from forebrief.app.workflow import Inputs
 t1 = time.perf_counter()
 f_path, o_path, as_of, baseline, out = sys.argv[1:6]
 as_of = pd.Timestamp(as_of)

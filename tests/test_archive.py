@@ -43,9 +43,9 @@ from typing import Any
 import pytest
 
 import forebrief
-from forebrief import archive as arc
 from forebrief.cli import main
 from forebrief.errors import ArchiveError
+from forebrief.record import archive as arc
 
 pytestmark = pytest.mark.slow
 
@@ -131,8 +131,8 @@ CRASH_DRIVER = textwrap.dedent("""
     import json, os, shutil, signal, sys
     from pathlib import Path
     import pandas as pd
-    from forebrief import pipeline
-    from forebrief.config import load_config
+    from forebrief.app import pipeline
+    from forebrief.app.config import load_config
 
     config, issued, out_json = sys.argv[1:4]
     stages = sys.argv[4:]
@@ -307,7 +307,7 @@ def test_the_demo_record_verifies_and_coreutils_agrees(world: World, run: Run) -
 
 
 def test_manifest_holds_version_config_inputs_outputs_and_decisions(world: World) -> None:
-    from forebrief.config import load_config
+    from forebrief.app.config import load_config
     from forebrief.io.outputs import json_ready
 
     m = json.loads((world.record / arc.MANIFEST).read_text(encoding="utf-8"))
@@ -925,7 +925,7 @@ def test_a_leftover_folder_with_the_record_name_is_refused(
 def lock_held_by_another_process(archive: Path) -> Iterator[subprocess.Popen[str]]:
     """A second process holding the archive lock until its stdin is closed."""
     code = (
-        "import sys; from pathlib import Path; from forebrief.archive import archive_lock\n"
+        "import sys; from pathlib import Path; from forebrief.record.archive import archive_lock\n"
         f"with archive_lock(Path({str(archive)!r})):\n"
         "    print('held', flush=True); sys.stdin.read()\n"
     )
@@ -1071,7 +1071,7 @@ def test_send_to_other_addresses_with_the_password_from_the_environment(
     from aiosmtpd.smtp import AuthResult, LoginPassword
 
     record = archive_copy / DEMO_DAY
-    from forebrief.config import config_from_dict
+    from forebrief.app.config import config_from_dict
 
     manifest = json.loads((record / arc.MANIFEST).read_text())
     env_name = config_from_dict(manifest["config"]).email.password_env

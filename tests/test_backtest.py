@@ -1,4 +1,4 @@
-"""The back-test (forebrief.backtest) and the ``forebrief backtest`` command.
+"""The back-test (forebrief.tables.backtest) and the ``forebrief backtest`` command.
 
 Checks: relative WIS of the baseline is 1 by definition (Cramer et al. 2022, PNAS 119(15),
 Methods: skill scaled by the baseline's); the information barrier (each date's ensemble uses
@@ -15,10 +15,10 @@ import numpy as np
 import pandas as pd
 import pytest
 
-from forebrief.backtest import backtest
-from forebrief.ensemble import EnsembleSettings, build_ensemble
+from forebrief.app.workflow import load_inputs
 from forebrief.errors import ConfigError
-from forebrief.workflow import load_inputs
+from forebrief.tables.backtest import backtest
+from forebrief.tables.ensemble import EnsembleSettings, build_ensemble
 from test_ensemble import Run, write_season
 
 START = pd.Timestamp("2026-09-21")

@@ -1,4 +1,4 @@
-"""Tests of the persistence baseline (forebrief.baseline).
+"""Tests of the persistence baseline (forebrief.tables.baseline).
 
 Reference values come from docs/methods.md §7 and its check table (rows B1, B2),
 which follow the published description in Cramer et al. (2022), PNAS 119(15):e2113561119,
@@ -16,10 +16,10 @@ import numpy as np
 import pandas as pd
 import pytest
 
-import forebrief.baseline as baseline
-from forebrief.baseline import multiset_quantile, persistence_forecast, sum_quantiles
+import forebrief.tables.baseline as baseline
 from forebrief.errors import ConfigError, InputError
-from forebrief.schema import CM_LEVELS, FORECAST_COLUMNS, STANDARD_LEVELS
+from forebrief.tables.baseline import multiset_quantile, persistence_forecast, sum_quantiles
+from forebrief.tables.schema import CM_LEVELS, FORECAST_COLUMNS, STANDARD_LEVELS
 
 TAU5 = np.array(CM_LEVELS)
 SAT = pd.Timestamp("2031-02-22")  # a Saturday

@@ -3,7 +3,7 @@
 Input: the facts of the invented demo scenario (run once per module, the way the weekly job
 runs), plus variants of them made with ``dataclasses.replace`` for the edge cases (one
 horizon, a threshold far above the data, per-horizon scores). Checks look at the artists
-matplotlib holds (gids set by :mod:`forebrief.charts`), never at pixels.
+matplotlib holds (gids set by :mod:`forebrief.report.charts`), never at pixels.
 
 Outside references:
 - the Okabe-Ito colours as RGB triplets published in Okabe & Ito (2008), "Color Universal
@@ -35,12 +35,12 @@ import pytest
 from matplotlib.collections import PathCollection, PolyCollection
 from matplotlib.figure import Figure
 
-from forebrief import charts
-from forebrief.config import load_config
+from forebrief.app.config import load_config
+from forebrief.app.weekly import run_briefing
+from forebrief.app.workflow import load_inputs
 from forebrief.demo import generate_scenario, write_scenario
-from forebrief.facts import BriefingFacts, ModelVerdict, OutlookRow, TrackRow
-from forebrief.weekly import run_briefing
-from forebrief.workflow import load_inputs
+from forebrief.report import charts
+from forebrief.report.facts import BriefingFacts, ModelVerdict, OutlookRow, TrackRow
 
 ARTIFACTS = Path(__file__).resolve().parents[1] / "test-artifacts" / "charts"
 
@@ -717,7 +717,7 @@ def test_no_pyplot_state(facts: BriefingFacts, tmp_path: Path) -> None:
     code = (
         "import json, sys\n"
         "from test_charts import _rebuild\n"
-        "from forebrief import charts\n"
+        "from forebrief.report import charts\n"
         f"f = _rebuild(json.loads(open({str(path)!r}, encoding='utf-8').read()))\n"
         "charts.figure_png(charts.outlook_grid(f, 'admissions'))\n"
         "charts.figure_svg(charts._figure_of(charts.reliability_chart(f, 'deaths')))\n"

@@ -4,8 +4,8 @@ Each simulated series has a known complete weekly count and a known reporting pr
 40% of a week's count arrives in later reports, as in the issue that motivated the nowcast).
 The forecast of next week is the exact conditional median given the truth (a forecaster
 calibrated by construction), so any wrong direction comes from the comparison, not from the
-forecast. The claim checked is the outlook's ``direction`` (``forebrief.facts.direction_of``
-against the chain-ladder nowcast of last week, ``forebrief.nowcast.nowcast_table``).
+forecast. The claim checked is the outlook's ``direction`` (``forebrief.report.facts.direction_of``
+against the chain-ladder nowcast of last week, ``forebrief.tables.nowcast.nowcast_table``).
 
 Size and power (measured with the seeds below, 400 series each):
 - falling 20% a week: "down" in 99.8% of series against the nowcast; comparing with the
@@ -23,8 +23,8 @@ import numpy as np
 import pandas as pd
 import pytest
 
-from forebrief.facts import DIRECTION_BAND, direction_of
-from forebrief.nowcast import nowcast_table
+from forebrief.report.facts import DIRECTION_BAND, direction_of
+from forebrief.tables.nowcast import nowcast_table
 
 N_SERIES = 400
 N_WEEKS = 20

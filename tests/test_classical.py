@@ -14,9 +14,7 @@ from hypothesis import strategies as st
 from scipy.special import rel_entr
 from scipy.stats import chi2, norm
 
-from forebrief.errors import ConfigError
-from forebrief.schema import CM_LEVELS, cm_probabilities
-from forebrief.scoring import (
+from forebrief.core import (
     Weights,
     bin_counts,
     bin_index,
@@ -26,6 +24,8 @@ from forebrief.scoring import (
     performance_weights,
     relative_entropy,
 )
+from forebrief.errors import ConfigError
+from forebrief.tables.schema import CM_LEVELS, cm_probabilities
 
 P5 = cm_probabilities(CM_LEVELS)  # (.05, .20, .25, .25, .20, .05)
 P3 = cm_probabilities((0.05, 0.5, 0.95))  # (.05, .45, .45, .05)

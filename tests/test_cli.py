@@ -27,9 +27,9 @@ import pytest
 from scipy.stats import norm
 
 from forebrief.cli import build_parser
-from forebrief.schema import CM_LEVELS
-from forebrief.scoring.engine import BY_ITEM_COLUMNS, BY_MODEL_COLUMNS
-from forebrief.validate import EXCLUDED_COLUMNS
+from forebrief.tables.schema import CM_LEVELS
+from forebrief.tables.scoring import BY_ITEM_COLUMNS, BY_MODEL_COLUMNS
+from forebrief.tables.validate import EXCLUDED_COLUMNS
 
 HEADER = "model,region,quantity,issued,week_ending,level,value"
 OBS_HEADER = "region,quantity,week_ending,value,reported"
@@ -562,8 +562,8 @@ def test_console_script_check_real_files(tmp_path: Path) -> None:
 # score
 
 
-# The columns documented in forebrief.scoring.engine (BY_MODEL_COLUMNS, BY_ITEM_COLUMNS) and
-# forebrief.validate (EXCLUDED_COLUMNS), written out here so that a change on either side shows.
+# The columns documented in forebrief.tables.scoring (BY_MODEL_COLUMNS, BY_ITEM_COLUMNS) and
+# forebrief.tables.validate (EXCLUDED_COLUMNS), written out here so that a change on either side shows.
 MODEL_COLUMNS = [
     "quantity",
     "horizon",

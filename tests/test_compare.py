@@ -1,4 +1,4 @@
-"""The Diebold-Mariano test and the headline rule (forebrief.compare).
+"""The Diebold-Mariano test and the headline rule (forebrief.tables.compare).
 
 Outside checks, named beside each test: the check values below, hand-computed with scipy from
 the formulas of Diebold & Mariano (1995, J. Bus. Econ. Statist. 13:253: DM = dbar / sqrt(V/n))
@@ -19,9 +19,9 @@ import pandas as pd
 import pytest
 from scipy import stats
 
-from forebrief.compare import METHOD_NAMES, choose_headline, diebold_mariano
-from forebrief.ensemble import METHODS
 from forebrief.errors import ConfigError
+from forebrief.tables.compare import METHOD_NAMES, choose_headline, diebold_mariano
+from forebrief.tables.ensemble import METHODS
 
 # check values (h = 1): hand-computed with scipy (norm.sf, t.sf) from the DM and HLN formulas
 CHECK_D = (1.2, 0.4, -0.3, 0.8, 1.1, 0.2, 0.9, -0.1, 0.5, 0.7)

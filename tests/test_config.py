@@ -15,8 +15,7 @@ from pathlib import Path
 
 import pytest
 
-from forebrief.cli import main
-from forebrief.config import (
+from forebrief.app.config import (
     BriefingConfig,
     EmailConfig,
     QuantityInfo,
@@ -25,6 +24,7 @@ from forebrief.config import (
     load_config,
     parse_config,
 )
+from forebrief.cli import main
 from forebrief.demo import generate_scenario, write_scenario
 from forebrief.errors import ConfigError
 

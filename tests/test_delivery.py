@@ -1,4 +1,4 @@
-"""Sending over SMTP (forebrief.delivery), against real servers on 127.0.0.1 only.
+"""Sending over SMTP (forebrief.app.delivery), against real servers on 127.0.0.1 only.
 
 Outside checks: an independent SMTP server implementation (aiosmtpd, the replacement the
 Python documentation names for the removed ``smtpd`` module) receives the message; RFC 5321
@@ -24,7 +24,7 @@ from typing import Any
 import numpy as np
 import pytest
 
-from forebrief.delivery import (
+from forebrief.app.delivery import (
     SendReceipt,
     password_from_env_or_prompt,
     recipients_of,

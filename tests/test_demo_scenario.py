@@ -33,8 +33,8 @@ from forebrief.demo import (
 )
 from forebrief.demo.__main__ import main as demo_main
 from forebrief.demo.scenario import LEVELS, RATING_WEEKS, REGIONS, TEAMS
-from forebrief.facts import VERDICTS
-from forebrief.schema import CM_LEVELS, FORECAST_COLUMNS
+from forebrief.report.facts import VERDICTS
+from forebrief.tables.schema import CM_LEVELS, FORECAST_COLUMNS
 
 EXAMPLE_INPUTS = Path(__file__).resolve().parents[1] / "example_inputs"
 LAST_WEEK = pd.Timestamp("2026-11-28")

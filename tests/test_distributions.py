@@ -1,4 +1,4 @@
-"""Tests of forebrief.distributions: piecewise-linear members, exact linear pool, Vincentization.
+"""Tests of forebrief.core.distributions: piecewise-linear members, exact linear pool, Vincentization.
 
 Outside checks: the worked values of docs/methods.md §2 and §4 (Cooke 1991 ch. 12; Cooke &
 Slijkhuis 2003 §15.3.2; Lichtendahl, Grushka-Cockayne & Winkler 2013, Management Science
@@ -17,7 +17,7 @@ from hypothesis import strategies as st
 from scipy.optimize import brentq
 from scipy.stats import norm
 
-from forebrief.distributions import (
+from forebrief.core.distributions import (
     linear_pool_quantiles,
     member_cdf,
     pool_cdf,
@@ -26,7 +26,7 @@ from forebrief.distributions import (
     support_bounds,
 )
 from forebrief.errors import ConfigError
-from forebrief.schema import CM_LEVELS
+from forebrief.tables.schema import CM_LEVELS
 
 TAU = np.array(CM_LEVELS)
 # The two experts of docs/methods.md §2 (check I2) and the realization x = 112.

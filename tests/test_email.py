@@ -1,4 +1,4 @@
-"""The briefing e-mail (forebrief.render.email): MIME structure, headers, HTML, refusals.
+"""The briefing e-mail (forebrief.report.render.email): MIME structure, headers, HTML, refusals.
 
 Outside checks, named at each test:
 - RFC 2046 (Freed & Borenstein 1996): section 5.1.3 multipart/mixed, 5.1.4 multipart/
@@ -33,12 +33,12 @@ from typing import Any
 
 import pytest
 
-from forebrief.config import EmailConfig, load_config
-from forebrief.delivery import recipients_of, send_message
+from forebrief.app.config import EmailConfig, load_config
+from forebrief.app.delivery import recipients_of, send_message
 from forebrief.errors import DeliveryError, ForebriefError
-from forebrief.facts import BriefingFacts
-from forebrief.narrative import Narrative, build_narrative, narrative_text
-from forebrief.render.email import EMAIL_WIDTH, build_message, email_chart
+from forebrief.report.facts import BriefingFacts
+from forebrief.report.narrative import Narrative, build_narrative, narrative_text
+from forebrief.report.render.email import EMAIL_WIDTH, build_message, email_chart
 
 CREATED = dt.datetime(2026, 9, 14, 7, 30, tzinfo=dt.UTC)
 EMAIL = EmailConfig(
@@ -83,9 +83,9 @@ def _png(label: str) -> bytes:
 @pytest.fixture(scope="module")
 def run(tmp_path_factory: pytest.TempPathFactory) -> Any:
     """A quick weekly run of the invented demo: submissions up to 2026-09-14, 2 back-test weeks."""
+    from forebrief.app.weekly import run_briefing
+    from forebrief.app.workflow import load_inputs
     from forebrief.demo import generate_scenario, write_scenario
-    from forebrief.weekly import run_briefing
-    from forebrief.workflow import load_inputs
 
     folder = tmp_path_factory.mktemp("demo")
     write_scenario(generate_scenario(), folder)
@@ -626,7 +626,7 @@ def test_html_part_renders_at_600px_without_overflow(facts, narrative) -> None:
     chromium = Path("/usr/bin/chromium")
     if not chromium.exists():
         pytest.skip("Debian chromium is not installed (apt-get install chromium)")
-    from forebrief.charts import briefing_figures
+    from forebrief.report.charts import briefing_figures
 
     charts = briefing_figures(facts)
     msg = _parse(_build(facts, narrative, charts))

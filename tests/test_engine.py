@@ -13,8 +13,8 @@ import pytest
 from scipy.special import rel_entr
 from scipy.stats import chi2, norm
 
-from forebrief.schema import CM_LEVELS
-from forebrief.scoring.engine import ScoreSettings, score_forecasts
+from forebrief.tables.schema import CM_LEVELS
+from forebrief.tables.scoring import ScoreSettings, score_forecasts
 
 TAU = np.array(CM_LEVELS)
 P5 = np.array([0.05, 0.20, 0.25, 0.25, 0.20, 0.05])

@@ -1,4 +1,4 @@
-"""Ensembles of one issue date (forebrief.ensemble) on small hand-built tables.
+"""Ensembles of one issue date (forebrief.tables.ensemble) on small hand-built tables.
 
 Outside checks, each named beside its test: the worked Classical Model example of
 docs/methods.md §3 (check D1; Cooke 1991, ch. 12; Cooke & Goossens 2008), recomputed here by
@@ -23,13 +23,14 @@ from scipy.optimize import brentq
 from scipy.special import rel_entr
 from scipy.stats import chi2, norm
 
-from forebrief.distributions import (
+from forebrief.core.distributions import (
     linear_pool_quantiles,
     member_cdf,
     pool_cdf,
     support_bounds,
 )
-from forebrief.ensemble import (
+from forebrief.errors import ConfigError
+from forebrief.tables.ensemble import (
     ENSEMBLE_COLUMNS,
     METHODS,
     ROBUSTNESS_COLUMNS,
@@ -38,9 +39,8 @@ from forebrief.ensemble import (
     build_ensemble,
     history_scores,
 )
-from forebrief.errors import ConfigError
-from forebrief.schema import CM_LEVELS
-from forebrief.scoring.engine import score_forecasts
+from forebrief.tables.schema import CM_LEVELS
+from forebrief.tables.scoring import score_forecasts
 
 TAU = np.array(CM_LEVELS)
 P5 = np.diff(np.r_[0.0, TAU, 1.0])  # (0.05, 0.20, 0.25, 0.25, 0.20, 0.05), docs/methods.md §1

@@ -24,10 +24,12 @@ import pandas as pd
 import pytest
 from scipy.stats import chi2, norm, power_divergence
 
-from forebrief.config import BriefingConfig, Threshold, load_config
+from forebrief.app.config import BriefingConfig, Threshold, load_config
+from forebrief.app.weekly import BriefingRun, known_by, run_briefing
+from forebrief.app.workflow import load_inputs
+from forebrief.core.distributions import pool_cdf
 from forebrief.demo import generate_scenario, write_scenario
-from forebrief.distributions import pool_cdf
-from forebrief.facts import (
+from forebrief.report.facts import (
     CAUTIONS,
     BriefingFacts,
     build_facts,
@@ -36,8 +38,6 @@ from forebrief.facts import (
     round_count,
     verdict_from_bins,
 )
-from forebrief.weekly import BriefingRun, known_by, run_briefing
-from forebrief.workflow import load_inputs
 
 P_CM = np.array([0.05, 0.20, 0.25, 0.25, 0.20, 0.05])  # Cooke 1991 ch. 12, 5/25/50/75/95%
 
@@ -235,7 +235,7 @@ def test_the_rebuilt_facts_match_the_run(demo_run: BriefingRun) -> None:
 
 @pytest.mark.slow
 def test_without_a_total_region_no_total_is_available(demo_run: BriefingRun) -> None:
-    from forebrief.narrative import narrative_text
+    from forebrief.report.narrative import narrative_text
 
     cfg = dataclasses.replace(demo_run.config, total_region=None)
     facts = _facts_with(demo_run, cfg)
@@ -292,7 +292,7 @@ def test_change_from_the_last_observation(demo_run: BriefingRun) -> None:
 def test_every_verdict_follows_from_its_items(demo_run: BriefingRun) -> None:
     # Each verdict counts the model's scored items of the horizons shown, one unit per region
     # and target week, without the jurisdiction total (every demo team forecasts the regions);
-    # its explanation counts the 1-week-ahead forecasts (forebrief.scoring.verdict).
+    # its explanation counts the 1-week-ahead forecasts (forebrief.core.verdict).
     cfg, facts = demo_run.config, demo_run.facts
     assert demo_run.scores is not None
     by_model, by_item = demo_run.scores.by_model, demo_run.scores.by_item
@@ -344,7 +344,7 @@ def test_the_headline_direction_agrees_with_the_scenario_s_next_week(
     # the scenario's truth is known: the complete count of the last week and of the week
     # after it (never published); the briefing's direction for each series must agree with it
     # wherever the true change is outside the 5% "about the same" band
-    from forebrief.facts import DIRECTION_BAND
+    from forebrief.report.facts import DIRECTION_BAND
 
     scenario = generate_scenario()
     truth = scenario.truth.set_index(["region", "quantity", "week_ending"])["value"]
@@ -438,7 +438,7 @@ def mixture_run(tmp_path_factory: pytest.TempPathFactory) -> BriefingRun:
 def test_the_median_of_the_models_gives_its_own_exceedance(mixture_run: BriefingRun) -> None:
     # with the quantile median as headline, P(Y > t) comes from its own quantiles as a
     # piecewise-linear CDF (checked with numpy.interp between the 199 levels)
-    from forebrief.facts import round_probability
+    from forebrief.report.facts import round_probability
 
     cfg = dataclasses.replace(mixture_run.config, headline="quantile_median")
     inputs = load_inputs(cfg.forecasts, cfg.observations)

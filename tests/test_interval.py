@@ -17,9 +17,7 @@ from hypothesis import given, settings
 from hypothesis import strategies as st
 from scipy.stats import norm
 
-from forebrief.errors import ConfigError
-from forebrief.schema import CM_LEVELS, STANDARD_LEVELS
-from forebrief.scoring import (
+from forebrief.core import (
     CentralIntervals,
     WISParts,
     absolute_error,
@@ -30,6 +28,8 @@ from forebrief.scoring import (
     sign_bias,
     wis_parts,
 )
+from forebrief.errors import ConfigError
+from forebrief.tables.schema import CM_LEVELS, STANDARD_LEVELS
 
 TAU5 = np.array(CM_LEVELS)
 TAU23 = np.array(STANDARD_LEVELS)

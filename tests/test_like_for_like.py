@@ -32,13 +32,13 @@ import pytest
 import scoringrules as sr
 from scipy.stats import norm
 
+from forebrief.app.config import config_from_dict
+from forebrief.app.workflow import load_inputs
 from forebrief.cli import main
-from forebrief.config import config_from_dict
-from forebrief.ensemble import with_baseline
-from forebrief.schema import STANDARD_LEVELS
-from forebrief.scoring import relative_skill, relative_skill_pairwise
-from forebrief.scoring.engine import ScoreSettings, score_forecasts
-from forebrief.workflow import load_inputs
+from forebrief.core import relative_skill, relative_skill_pairwise
+from forebrief.tables.ensemble import with_baseline
+from forebrief.tables.schema import STANDARD_LEVELS
+from forebrief.tables.scoring import ScoreSettings, score_forecasts
 
 SEVEN = (0.025, 0.1, 0.25, 0.5, 0.75, 0.9, 0.975)
 NINE = (0.025, 0.05, 0.1, 0.25, 0.5, 0.75, 0.9, 0.95, 0.975)  # with the Classical Model levels
@@ -399,7 +399,7 @@ def _season(folder: Path) -> Path:
 
 
 def test_weekly_scores_by_model_weight_equals_weights_csv(tmp_path: Path) -> None:
-    from forebrief.weekly import run_briefing
+    from forebrief.app.weekly import run_briefing
 
     folder = _season(tmp_path)
     cfg = config_from_dict({

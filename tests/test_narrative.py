@@ -20,12 +20,12 @@ import pandas as pd
 import pytest
 from scipy.stats import norm
 
-from forebrief.config import BriefingConfig, Threshold, load_config
+from forebrief.app.config import BriefingConfig, Threshold, load_config
+from forebrief.app.weekly import BriefingRun, run_briefing
+from forebrief.app.workflow import load_inputs
 from forebrief.demo import generate_scenario, write_scenario
-from forebrief.facts import CAUTIONS, BriefingFacts
-from forebrief.narrative import build_narrative, narrative_text
-from forebrief.weekly import BriefingRun, run_briefing
-from forebrief.workflow import load_inputs
+from forebrief.report.facts import CAUTIONS, BriefingFacts
+from forebrief.report.narrative import build_narrative, narrative_text
 
 MONTHS = "January|February|March|April|May|June|July|August|September|October|November|December"
 # one number as a reader sees it; longest forms first

@@ -1,4 +1,4 @@
-"""Tests of the chain-ladder nowcast and the settle delay (forebrief.nowcast).
+"""Tests of the chain-ladder nowcast and the settle delay (forebrief.tables.nowcast).
 
 Outside checks:
 - the chain ladder (Mack 1993, ASTIN Bulletin 23(2):213, sec. 2: volume-weighted factors,
@@ -26,7 +26,7 @@ import pytest
 from scipy import stats
 
 from forebrief.errors import ConfigError
-from forebrief.nowcast import (
+from forebrief.tables.nowcast import (
     NOWCAST_COLUMNS,
     chain_ladder,
     completion_spread,

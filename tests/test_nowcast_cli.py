@@ -2,7 +2,7 @@
 
 Run through ``forebrief.cli.main([...])`` (stdout and stderr captured) and once through the
 installed console script in a real process. The written file is checked against the library
-(:func:`forebrief.nowcast.nowcast_table` on the same validated observations, written with the
+(:func:`forebrief.tables.nowcast.nowcast_table` on the same validated observations, written with the
 project's CSV writer) and read back with the stdlib ``csv`` reader; the hand-worked triangle
 of ``tests/test_nowcast.py`` (chain ladder of Mack 1993, sec. 2) gives the nowcasts. Exit codes
 0/1/2 follow the project's contract (2 is also argparse's own code for usage errors). Regions
@@ -21,9 +21,9 @@ from pathlib import Path
 import pandas as pd
 import pytest
 
+from forebrief.app.workflow import load_observations
 from forebrief.io.tables import csv_bytes
-from forebrief.nowcast import NOWCAST_COLUMNS, nowcast_table
-from forebrief.workflow import load_observations
+from forebrief.tables.nowcast import NOWCAST_COLUMNS, nowcast_table
 
 #: Hand-worked triangle (weeks x delays 0..3); the vintage at delay d is published on the
 #: Monday d weeks after the week ends. The last week ends on Saturday 2031-03-01.

@@ -46,9 +46,9 @@ from scipy.stats import chi2
 
 from _open_forecasters import METHODS, issue_forecasts
 from forebrief.io.tables import RawFile
-from forebrief.schema import STANDARD_LEVELS
-from forebrief.scoring.engine import ScoreResult, ScoreSettings, score_forecasts
-from forebrief.validate import validate_forecasts, validate_observations
+from forebrief.tables.schema import STANDARD_LEVELS
+from forebrief.tables.scoring import ScoreResult, ScoreSettings, score_forecasts
+from forebrief.tables.validate import validate_forecasts, validate_observations
 
 REGION = "histdata-1849"  # named after the data set, not a place
 CAUSES = {"Cholera": "cholera_deaths", "Diarrhaea": "diarrhoea_deaths"}  # spelling of the data

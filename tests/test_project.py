@@ -25,13 +25,13 @@ def test_version_matches_the_package_metadata() -> None:
     "module",
     [
         "forebrief",
-        "forebrief.scoring",
-        "forebrief.validate",
-        "forebrief.distributions",
-        "forebrief.ensemble",
-        "forebrief.facts",
-        "forebrief.archive",
-        "forebrief.render",
+        "forebrief.core",
+        "forebrief.tables.validate",
+        "forebrief.core.distributions",
+        "forebrief.tables.ensemble",
+        "forebrief.report.facts",
+        "forebrief.record.archive",
+        "forebrief.report.render",
     ],
 )
 def test_every_exported_name_exists(module: str) -> None:
@@ -81,7 +81,7 @@ def test_the_wheel_ships_the_templates(tmp_path: Path) -> None:
 
 
 def test_templates_are_found_from_the_installed_package() -> None:
-    from forebrief.resources import template_root
+    from forebrief.report.resources import template_root
 
     root = template_root()
     assert (root / "briefing.html.j2").is_file()

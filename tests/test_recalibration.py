@@ -1,4 +1,4 @@
-"""The recalibrated pool: forebrief.recalibration and the ``recalibrated_pool`` of build_ensemble.
+"""The recalibrated pool: forebrief.core.recalibration and the ``recalibrated_pool`` of build_ensemble.
 
 The method is the beta-transformed linear pool F(y) = B_ab(F_pool(y)) (Ranjan & Gneiting 2010,
 JRSS B 72:71; Gneiting & Ranjan 2013, Electron. J. Statist. 7:1747), with (a, b) the Beta
@@ -18,10 +18,10 @@ import pandas as pd
 import pytest
 from scipy import stats
 
-from forebrief.distributions import pool_cdf
-from forebrief.ensemble import METHODS, EnsembleSettings, build_ensemble
-from forebrief.recalibration import PIT_CLIP, beta_levels, fit_beta, pool_pit
-from forebrief.schema import CM_LEVELS
+from forebrief.core.distributions import pool_cdf
+from forebrief.core.recalibration import PIT_CLIP, beta_levels, fit_beta, pool_pit
+from forebrief.tables.ensemble import METHODS, EnsembleSettings, build_ensemble
+from forebrief.tables.schema import CM_LEVELS
 
 # check values: hand-computed with scipy.stats.beta.fit(u, floc=0, fscale=1) and beta.ppf
 CHECK_U = (0.02, 0.05, 0.1, 0.5, 0.9, 0.95, 0.97, 0.99, 0.03, 0.6, 0.4, 0.98)

@@ -12,8 +12,8 @@ import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
+from forebrief.core import RelativeSkill, relative_skill
 from forebrief.errors import ConfigError
-from forebrief.scoring import RelativeSkill, relative_skill
 
 R1_SCORES = np.array(
     [

@@ -25,14 +25,14 @@ from typing import Any
 
 import pytest
 
-from forebrief.config import load_config
+from forebrief.app.config import load_config
+from forebrief.app.pipeline import record_briefing, render_briefing
 from forebrief.demo import generate_scenario, write_scenario
 from forebrief.errors import ForebriefError
-from forebrief.narrative import build_narrative
-from forebrief.pipeline import record_briefing, render_briefing
-from forebrief.render import render_html, render_pdf, template_environment
-from forebrief.render.pdf import OfflineFetcher
-from forebrief.resources import template_root
+from forebrief.report.narrative import build_narrative
+from forebrief.report.render import render_html, render_pdf, template_environment
+from forebrief.report.render.pdf import OfflineFetcher
+from forebrief.report.resources import template_root
 
 pypdf = pytest.importorskip("pypdf")
 from PIL import Image  # noqa: E402  (Pillow comes with matplotlib)
@@ -55,7 +55,7 @@ def drawn() -> Iterator[dict[int, tuple[Any, list[Any]]]]:
     """Charts depend on the facts alone, so within this module each facts object is drawn
     once: the letter rendering below reuses the demo's figures (drawing takes most of the
     rendering time)."""
-    import forebrief.charts as charts_module
+    import forebrief.report.charts as charts_module
 
     cache: dict[int, tuple[Any, list[Any]]] = {}
     real = charts_module.briefing_figures

@@ -23,11 +23,12 @@ import pyarrow as pa
 import pyarrow.parquet as pq
 import pytest
 
+from forebrief.app.workflow import load_forecasts, load_observations
 from forebrief.errors import ConfigError, InputError
 from forebrief.io.tables import parse_column_map, read_raw_table, resolve_inputs
-from forebrief.observations import observations_as_of, revisions_between
-from forebrief.schema import CM_LEVELS, STANDARD_LEVELS
-from forebrief.validate import (
+from forebrief.tables.observations import observations_as_of, revisions_between
+from forebrief.tables.schema import CM_LEVELS, STANDARD_LEVELS
+from forebrief.tables.validate import (
     EXCLUDED_COLUMNS,
     Problem,
     ValidatedForecasts,
@@ -37,7 +38,6 @@ from forebrief.validate import (
     validate_forecasts,
     validate_observations,
 )
-from forebrief.workflow import load_forecasts, load_observations
 
 HEADER = "model,region,quantity,issued,week_ending,level,value"
 OBS_HEADER = "region,quantity,week_ending,value"

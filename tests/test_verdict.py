@@ -1,4 +1,4 @@
-"""The verdict core (forebrief.scoring.verdict) on hand-worked bin cases.
+"""The verdict core (forebrief.core.verdict) on hand-worked bin cases.
 
 Outside references:
 
@@ -23,15 +23,15 @@ import numpy as np
 import pytest
 from scipy.stats import binomtest, chi2, f, f_oneway, power_divergence
 
-from forebrief.schema import CM_LEVELS, cm_probabilities
-from forebrief.scoring.classical import calibration_score
-from forebrief.scoring.verdict import (
+from forebrief.core.classical import calibration_score
+from forebrief.core.verdict import (
     VERDICT_NAMES,
     binomial_p,
     design_effect,
     evidence_units,
     rate_record,
 )
+from forebrief.tables.schema import CM_LEVELS, cm_probabilities
 
 P = cm_probabilities(CM_LEVELS)
 

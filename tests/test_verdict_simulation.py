@@ -13,8 +13,8 @@ correlated sum (Fenton 1960, IRE Trans. Commun. Syst. 8:57-67; pages from memory
 same forecasts on the log scale: a third of the spread, 2.5 times the spread, and the level
 times 1.35 or divided by 1.35.
 
-The verdicts come from :func:`forebrief.scoring.verdict.rate_record` on the items kept by
-:func:`forebrief.scoring.verdict.evidence_units` (the total dropped), at test level 0.05.
+The verdicts come from :func:`forebrief.core.verdict.rate_record` on the items kept by
+:func:`forebrief.core.verdict.evidence_units` (the total dropped), at test level 0.05.
 Requirements (from the issue): the calibrated team is "reliable" in >= 90% of seasons; the
 others are named "overconfident", "underconfident", "biased high" and "biased low" in >= 95%.
 
@@ -48,8 +48,8 @@ import numpy as np
 import pytest
 from scipy.stats import chi2, norm, power_divergence
 
-from forebrief.schema import CM_LEVELS, cm_probabilities
-from forebrief.scoring.verdict import VERDICT_NAMES, Verdict, evidence_units, rate_record
+from forebrief.core.verdict import VERDICT_NAMES, Verdict, evidence_units, rate_record
+from forebrief.tables.schema import CM_LEVELS, cm_probabilities
 
 P = cm_probabilities(CM_LEVELS)  # (.05, .20, .25, .25, .20, .05), Cooke 1991 ch. 12
 Z = norm.ppf(CM_LEVELS)

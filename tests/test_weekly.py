@@ -20,12 +20,12 @@ import pandas as pd
 import pytest
 
 from forebrief import __version__
+from forebrief.app.config import load_config
+from forebrief.app.weekly import run_briefing
+from forebrief.app.workflow import load_inputs
 from forebrief.cli import build_parser, main
-from forebrief.config import load_config
 from forebrief.demo import generate_scenario, write_scenario
 from forebrief.io.outputs import csv_bytes, json_bytes
-from forebrief.weekly import run_briefing
-from forebrief.workflow import load_inputs
 
 # WeasyPrint 70 opens its sRGB profile (weasyprint/pdf/__init__.py, the 'srgb' output intent)
 # and never closes it; the record's PDF is rendered by the in-process runs below.

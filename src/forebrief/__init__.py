@@ -8,14 +8,8 @@ write a plain-language briefing with its record.
 
 from __future__ import annotations
 
-from importlib.metadata import PackageNotFoundError, version
-
 from forebrief.errors import ArchiveError, ConfigError, DeliveryError, ForebriefError, InputError
-
-try:
-    __version__ = version("forebrief")
-except PackageNotFoundError:  # running from a source tree that was never installed
-    __version__ = "0.0.0+unknown"
+from forebrief.version import __version__
 
 __all__ = [
     "ArchiveError",

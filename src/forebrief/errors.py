@@ -10,7 +10,7 @@
 
 Every message names the file (and row or key where there is one), the bad value, and the fix.
 Row-level problems in input files are not exceptions: they are collected as ``Problem``
-records by :mod:`forebrief.validate`, and the bad forecast is quarantined.
+records by :mod:`forebrief.tables.validate`, and the bad forecast is quarantined.
 """
 
 from __future__ import annotations

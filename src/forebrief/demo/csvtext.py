@@ -7,7 +7,7 @@ from __future__ import annotations
 
 import pandas as pd
 
-from forebrief.schema import FORECAST_COLUMNS
+from forebrief.tables.schema import FORECAST_COLUMNS
 
 __all__ = [
     "OBSERVATION_FILE_COLUMNS",

@@ -49,7 +49,7 @@ import numpy as np
 import pandas as pd
 
 from forebrief.demo.csvtext import forecast_csv_lines, level_text
-from forebrief.schema import FORECAST_COLUMNS
+from forebrief.tables.schema import FORECAST_COLUMNS
 
 __all__ = [
     "DEFAULT_SEED",

@@ -1,7 +1,7 @@
 """Read forecast and observation files (CSV or Parquet, chosen by extension) and write tables.
 
 Reading does no checking beyond "can this file be read at all": every row-level check lives in
-:mod:`forebrief.validate`, so that one bad row never costs the good ones. Text columns are read
+:mod:`forebrief.tables.validate`, so that one bad row never costs the good ones. Text columns are read
 as text so that a bad entry can be quoted back to the user exactly as it was written.
 """
 
@@ -12,7 +12,6 @@ import io
 import os
 import warnings
 from collections.abc import Collection, Iterable, Mapping, Sequence
-from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
 
@@ -20,6 +19,7 @@ import numpy as np
 import pandas as pd
 
 from forebrief.errors import ConfigError, InputError
+from forebrief.tables.raw import RawFile
 
 __all__ = ["RawFile", "parse_column_map", "read_raw_table", "resolve_inputs", "write_csv"]
 
@@ -30,20 +30,6 @@ _TEXT_COLUMNS = ("model", "region", "quantity", "issued", "week_ending", "report
 #: columns that type by itself (pandas' string type; an object column may mix types).
 _TEXT_DTYPE = pd.Series(["a"], dtype=str).dtype
 _TEXT_INFERRED = isinstance(_TEXT_DTYPE, pd.StringDtype)
-
-
-@dataclass(frozen=True)
-class RawFile:
-    """One input file as read: columns renamed to forebrief's names, nothing else changed.
-
-    ``first_row`` is the row number of the first data row as a reader sees the file: 2 for CSV
-    (the header is row 1, as a spreadsheet shows it), 1 for Parquet.
-    """
-
-    label: str
-    frame: pd.DataFrame
-    first_row: int
-    renamed: Mapping[str, str] = field(default_factory=dict)
 
 
 def parse_column_map(text: str | None) -> dict[str, str]:

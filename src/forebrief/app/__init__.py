@@ -1,0 +1,1 @@
+"""The weekly pipeline, configuration files and delivery."""

@@ -1,0 +1,1 @@
+"""The dated archive: records, manifests, logs, verification and the index."""

@@ -1,8 +1,0 @@
-"""Rendering the facts into HTML, PDF and e-mail: placement only, no arithmetic."""
-
-from __future__ import annotations
-
-from forebrief.render.html import FigureView, render_html, template_environment
-from forebrief.render.pdf import render_pdf
-
-__all__ = ["FigureView", "render_html", "render_pdf", "template_environment"]

@@ -1,0 +1,1 @@
+"""Facts, narrative, charts and rendering: the briefing from computed tables."""

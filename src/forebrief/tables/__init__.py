@@ -1,0 +1,1 @@
+"""The pandas fronts: tables in, tables out; options checked once."""
