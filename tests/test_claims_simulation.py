@@ -60,8 +60,15 @@ def _simulate(growth: float, seed: int) -> tuple[pd.DataFrame, np.ndarray, np.nd
                 reported = week + pd.Timedelta(days=2 + 7 * j)
                 if reported > AS_OF:
                     break
-                rows.append((f"r{s:03d}", "admissions", week,
-                             float(np.floor(truth[s, w] * share)), reported))
+                rows.append(
+                    (
+                        f"r{s:03d}",
+                        "admissions",
+                        week,
+                        float(np.floor(truth[s, w] * share)),
+                        reported,
+                    )
+                )
     obs = pd.DataFrame(rows, columns=["region", "quantity", "week_ending", "value", "reported"])
     del nxt
     return obs, truth[:, -1], next_median
@@ -75,10 +82,14 @@ def _directions(growth: float, seed: int) -> tuple[list[str], list[str]]:
     assert not last["complete"].any()  # the last week is provisional in every series
     now = last["nowcast"].to_numpy()
     reported = last["reported_value"].to_numpy()
-    with_nowcast = [direction_of(float(np.round(a)), float(np.round(b)))
-                    for a, b in zip(next_median, now, strict=True)]
-    with_report = [direction_of(float(np.round(a)), float(b))
-                   for a, b in zip(next_median, reported, strict=True)]
+    with_nowcast = [
+        direction_of(float(np.round(a)), float(np.round(b)))
+        for a, b in zip(next_median, now, strict=True)
+    ]
+    with_report = [
+        direction_of(float(np.round(a)), float(b))
+        for a, b in zip(next_median, reported, strict=True)
+    ]
     return with_nowcast, with_report
 
 
@@ -106,8 +117,10 @@ def test_flat_series_is_mostly_about_the_same_and_never_far_off() -> None:
     assert np.mean(rel < 0.10) >= 0.95
     held = (last["nowcast_low90"] <= last_complete) & (last_complete <= last["nowcast_high90"])
     assert 0.85 <= held.mean() <= 0.95
-    words = [direction_of(float(np.round(a)), float(np.round(b)))
-             for a, b in zip(next_median, now, strict=True)]
+    words = [
+        direction_of(float(np.round(a)), float(np.round(b)))
+        for a, b in zip(next_median, now, strict=True)
+    ]
     assert words.count("about the same") / N_SERIES >= 0.5
     # a direction other than "about the same" only when the medians really differ
     change = np.abs(next_median - now) / now

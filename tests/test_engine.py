@@ -22,9 +22,16 @@ ISSUED = pd.Timestamp("2026-10-05")  # a Monday
 WEEK = pd.Timestamp("2026-10-10")  # the Saturday after: horizon 1
 
 
-def _forecast_rows(model: str, quantiles: np.ndarray, *, region: str = "r1",
-                   quantity: str = "admissions", issued: pd.Timestamp = ISSUED,
-                   week_ending: pd.Timestamp = WEEK, levels: np.ndarray = TAU) -> pd.DataFrame:
+def _forecast_rows(
+    model: str,
+    quantiles: np.ndarray,
+    *,
+    region: str = "r1",
+    quantity: str = "admissions",
+    issued: pd.Timestamp = ISSUED,
+    week_ending: pd.Timestamp = WEEK,
+    levels: np.ndarray = TAU,
+) -> pd.DataFrame:
     days = (week_ending - issued).days
     return pd.DataFrame(
         {
@@ -40,8 +47,11 @@ def _forecast_rows(model: str, quantiles: np.ndarray, *, region: str = "r1",
     )
 
 
-def _obs(values: dict[tuple[str, pd.Timestamp], float], quantity: str = "admissions",
-         reported: pd.Timestamp | None = None) -> pd.DataFrame:
+def _obs(
+    values: dict[tuple[str, pd.Timestamp], float],
+    quantity: str = "admissions",
+    reported: pd.Timestamp | None = None,
+) -> pd.DataFrame:
     return pd.DataFrame(
         {
             "region": [k[0] for k in values],
@@ -73,8 +83,12 @@ def test_two_expert_information_log_background() -> None:
     # recompute I3's construction on ln(x + 1) with plain numpy (Cooke 1991 ch. 12,
     # log-uniform background).
     fc = pd.concat([_forecast_rows("A", A), _forecast_rows("B", B)], ignore_index=True)
-    res = score_forecasts(fc, _obs({("r1", WEEK): 112.0}), as_of=pd.Timestamp("2026-10-12"),
-                          settings=ScoreSettings(background="log"))
+    res = score_forecasts(
+        fc,
+        _obs({("r1", WEEK): 112.0}),
+        as_of=pd.Timestamp("2026-10-12"),
+        settings=ScoreSettings(background="log"),
+    )
     qa, qb, x = np.log1p(A), np.log1p(B), np.log1p(112.0)
     lo, hi = min(qa.min(), qb.min(), x), max(qa.max(), qb.max(), x)
     lo, hi = lo - 0.1 * (hi - lo), hi + 0.1 * (hi - lo)
@@ -115,16 +129,20 @@ def _three_models() -> tuple[pd.DataFrame, pd.DataFrame]:
 def test_classical_model_regression_example() -> None:
     # Check D1, docs/methods.md §3: C = (0.7204, 0.0310, 0.6283); I = (0.8150, 1.0683, 0.2109)
     fc, obs = _three_models()
-    res = score_forecasts(fc, obs, as_of=pd.Timestamp("2026-10-12"),
-                          settings=ScoreSettings(alpha=0.0))
+    res = score_forecasts(
+        fc, obs, as_of=pd.Timestamp("2026-10-12"), settings=ScoreSettings(alpha=0.0)
+    )
     t = res.by_model.set_index("model")
-    np.testing.assert_allclose(t.loc[["m1", "m2", "m3"], "calibration"],
-                               [0.7204, 0.0310, 0.6283], atol=5e-5)
-    np.testing.assert_allclose(t.loc[["m1", "m2", "m3"], "information"],
-                               [0.8150, 1.0683, 0.2109], atol=5e-5)
+    np.testing.assert_allclose(
+        t.loc[["m1", "m2", "m3"], "calibration"], [0.7204, 0.0310, 0.6283], atol=5e-5
+    )
+    np.testing.assert_allclose(
+        t.loc[["m1", "m2", "m3"], "information"], [0.8150, 1.0683, 0.2109], atol=5e-5
+    )
     # alpha = 0: w = (0.780, 0.044, 0.176)
-    np.testing.assert_allclose(t.loc[["m1", "m2", "m3"], "weight"], [0.780, 0.044, 0.176],
-                               atol=5e-4)
+    np.testing.assert_allclose(
+        t.loc[["m1", "m2", "m3"], "weight"], [0.780, 0.044, 0.176], atol=5e-4
+    )
     assert t["n_items"].tolist() == [10, 10, 10]
     # calibration recomputed from the reported bin counts with scipy directly (Cooke 1991)
     counts = t.loc["m1", [f"bin_{j}" for j in range(6)]].to_numpy(dtype=float)
@@ -151,8 +169,9 @@ def test_cutoff_removes_models(cut_at: str, weights: list[float]) -> None:
 
 def test_no_model_passes_gives_equal_weights_and_says_so() -> None:
     fc, obs = _three_models()
-    res = score_forecasts(fc, obs, as_of=pd.Timestamp("2026-10-12"),
-                          settings=ScoreSettings(alpha=0.99))
+    res = score_forecasts(
+        fc, obs, as_of=pd.Timestamp("2026-10-12"), settings=ScoreSettings(alpha=0.99)
+    )
     assert res.by_model["weight"].tolist() == pytest.approx([1 / 3] * 3)
     assert res.by_model["equal_weights"].all()
     assert any("equal weights" in n for n in res.notes)
@@ -179,8 +198,12 @@ def test_log_scale_wis() -> None:
     # Bosse et al. (2023): WIS of ln(x + 1); check L1 (docs/methods.md §8) gives 0.4886
     # (0.0730 / 0 / 0.4157)
     fc = _forecast_rows("m", np.array([2, 4, 5, 7, 10.0]))
-    res = score_forecasts(fc, _obs({("r1", WEEK): 12.0}), as_of=pd.Timestamp("2026-10-12"),
-                          settings=ScoreSettings(scale="log"))
+    res = score_forecasts(
+        fc,
+        _obs({("r1", WEEK): 12.0}),
+        as_of=pd.Timestamp("2026-10-12"),
+        settings=ScoreSettings(scale="log"),
+    )
     row = res.by_model.iloc[0]
     assert row["wis"] == pytest.approx(0.4886, abs=5e-5)
     assert row["dispersion"] == pytest.approx(0.0730, abs=5e-5)
@@ -194,8 +217,9 @@ def test_window_bounds_and_observation_requirement() -> None:
     as_of = pd.Timestamp("2026-11-28")
     weeks = [as_of - pd.Timedelta(days=7 * k) for k in range(4)]  # 0, 1, 2, 3 weeks back
     rows = [
-        _forecast_rows("m", np.array([1, 2, 3, 4, 5.0]), issued=w - pd.Timedelta(days=5),
-                       week_ending=w)
+        _forecast_rows(
+            "m", np.array([1, 2, 3, 4, 5.0]), issued=w - pd.Timedelta(days=5), week_ending=w
+        )
         for w in weeks
     ]
     fc = pd.concat(rows, ignore_index=True)
@@ -230,15 +254,19 @@ def test_observation_on_a_quantile_goes_in_the_lower_bin() -> None:
 def test_latest_issued_forecast_of_an_item_is_scored() -> None:
     early = _forecast_rows("m", np.array([1, 2, 3, 4, 5.0]), issued=pd.Timestamp("2026-10-04"))
     later = _forecast_rows("m", np.array([10, 20, 30, 40, 50.0]))
-    res = score_forecasts(pd.concat([early, later], ignore_index=True),
-                          _obs({("r1", WEEK): 3.0}), as_of=pd.Timestamp("2026-10-12"))
+    res = score_forecasts(
+        pd.concat([early, later], ignore_index=True),
+        _obs({("r1", WEEK): 3.0}),
+        as_of=pd.Timestamp("2026-10-12"),
+    )
     assert res.by_item["median"].tolist() == [30.0]
     assert any("superseded" in n for n in res.notes)
 
 
 def test_degenerate_item_is_skipped_and_counted() -> None:
-    fc = pd.concat([_forecast_rows("a", np.zeros(5)), _forecast_rows("b", np.zeros(5))],
-                   ignore_index=True)
+    fc = pd.concat(
+        [_forecast_rows("a", np.zeros(5)), _forecast_rows("b", np.zeros(5))], ignore_index=True
+    )
     res = score_forecasts(fc, _obs({("r1", WEEK): 0.0}), as_of=pd.Timestamp("2026-10-12"))
     assert res.n_degenerate == 1
     assert res.by_item["information"].isna().all()
@@ -259,8 +287,12 @@ def test_relative_wis_against_pairwise_definition() -> None:
                 continue  # missing items make the pairwise definition matter
             q = y * np.exp(bias + rng.normal(0, 0.1) + sd * norm.ppf(TAU))
             rows.append(_forecast_rows(m, q, region=region))
-    res = score_forecasts(pd.concat(rows, ignore_index=True), _obs(obs),
-                          as_of=pd.Timestamp("2026-10-12"), settings=ScoreSettings(baseline="base"))
+    res = score_forecasts(
+        pd.concat(rows, ignore_index=True),
+        _obs(obs),
+        as_of=pd.Timestamp("2026-10-12"),
+        settings=ScoreSettings(baseline="base"),
+    )
     wis = res.by_item.pivot(index="region", columns="model", values="wis")
     models = list(wis.columns)
 

@@ -312,8 +312,11 @@ def test_every_verdict_follows_from_its_items(demo_run: BriefingRun) -> None:
         assert v.outside_90 == int(((first == 0) | (first == P_CM.size - 1)).sum())
         assert v.below_median == int((first < 3).sum())
         assert v.expected_outside_90 == pytest.approx(0.1 * len(first), abs=0.05)
-        rated = len(part) > 0 and part[[f"bin_{j}" for j in range(P_CM.size)]].to_numpy(
-        ).sum() >= cfg.min_items * len(part)  # a team with no settled target is not rated
+        rated = len(part) > 0 and part[
+            [f"bin_{j}" for j in range(P_CM.size)]
+        ].to_numpy().sum() >= cfg.min_items * len(
+            part
+        )  # a team with no settled target is not rated
         assert (v.verdict == "not yet rated") == (not rated), v.model
         if rated and v.calibration is not None:
             assert (v.verdict == "reliable") == (v.calibration >= 0.05), v.model
@@ -365,9 +368,12 @@ def test_the_headline_direction_agrees_with_the_scenario_s_next_week(
     assert checked >= 6
     assert agreed == checked
     summary = demo_run.facts.summary["focus"]
-    focus = next(o for o in demo_run.facts.outlook
-                 if (o.region, o.quantity, o.horizon)
-                 == (summary["region"], summary["quantity"], summary["horizon"]))
+    focus = next(
+        o
+        for o in demo_run.facts.outlook
+        if (o.region, o.quantity, o.horizon)
+        == (summary["region"], summary["quantity"], summary["horizon"])
+    )
     assert focus.is_total
     assert focus.direction == "down"  # the wave falls, and the text says so
     assert "down from about" in demo_run.narrative.headline[0]

@@ -79,9 +79,7 @@ def test_imports_run_down_the_flow(path: Path) -> None:
     assert not wrong, f"{path.relative_to(PACKAGE)}: " + "; ".join(wrong)
 
 
-@pytest.mark.parametrize(
-    "path", sorted((PACKAGE / "core").rglob("*.py")), ids=lambda p: p.name
-)
+@pytest.mark.parametrize("path", sorted((PACKAGE / "core").rglob("*.py")), ids=lambda p: p.name)
 def test_core_is_numbers_only(path: Path) -> None:
     bad = [f"line {n}: {m}" for n, m in _imports(path) if m.split(".")[0] in CORE_FORBIDDEN]
     assert not bad, f"core/{path.name} imports " + ", ".join(bad)

@@ -112,8 +112,14 @@ def hand_relative(
 # the invented forecasts
 
 
-def _rows(model: str, region: str, quantiles: dict[float, float], *,
-          week_ending: pd.Timestamp = WEEK, issued: pd.Timestamp = ISSUED) -> pd.DataFrame:
+def _rows(
+    model: str,
+    region: str,
+    quantiles: dict[float, float],
+    *,
+    week_ending: pd.Timestamp = WEEK,
+    issued: pd.Timestamp = ISSUED,
+) -> pd.DataFrame:
     return pd.DataFrame(
         {
             "model": model,
@@ -145,9 +151,13 @@ def _obs(observed: dict[str, float]) -> pd.DataFrame:
     ).astype({"reported": "datetime64[ns]"})
 
 
-def _panel(seed: int, *, teams: dict[str, tuple[float, ...]], n_regions: int = 8,
-           base_levels: tuple[float, ...] = STANDARD_LEVELS,
-           ) -> tuple[dict[tuple[str, str], dict[float, float]], dict[str, float]]:
+def _panel(
+    seed: int,
+    *,
+    teams: dict[str, tuple[float, ...]],
+    n_regions: int = 8,
+    base_levels: tuple[float, ...] = STANDARD_LEVELS,
+) -> tuple[dict[tuple[str, str], dict[float, float]], dict[str, float]]:
     """Teams on their own level sets and a baseline; a team skips some regions."""
     rng = np.random.default_rng(seed)
     forecasts: dict[tuple[str, str], dict[float, float]] = {}
@@ -169,15 +179,21 @@ def _table(forecasts: dict[tuple[str, str], dict[float, float]]) -> pd.DataFrame
     return pd.concat([_rows(m, r, q) for (m, r), q in forecasts.items()], ignore_index=True)
 
 
-def _engine_relative(forecasts: dict[tuple[str, str], dict[float, float]],
-                     observed: dict[str, float]) -> pd.Series:
-    res = score_forecasts(_table(forecasts), _obs(observed), as_of=AS_OF,
-                          settings=ScoreSettings(baseline=BASE))
+def _engine_relative(
+    forecasts: dict[tuple[str, str], dict[float, float]], observed: dict[str, float]
+) -> pd.Series:
+    res = score_forecasts(
+        _table(forecasts), _obs(observed), as_of=AS_OF, settings=ScoreSettings(baseline=BASE)
+    )
     return res.by_model.set_index("model")["relative_wis"]
 
 
-TEAMS = {"team-ash": SEVEN, "team-birch": SEVEN, "team-cedar": SEVEN,
-         "team-dogwood": STANDARD_LEVELS}
+TEAMS = {
+    "team-ash": SEVEN,
+    "team-birch": SEVEN,
+    "team-cedar": SEVEN,
+    "team-dogwood": STANDARD_LEVELS,
+}
 
 
 # --------------------------------------------------------------------------------------------
@@ -216,29 +232,38 @@ def test_teams_on_seven_levels_and_a_baseline_on_23_match_the_hand_computation()
     y, q = observed["dale-01"], forecasts[(BASE, "dale-01")]
     ci = [t for t in SEVEN if t < 0.5]
     ref = sr.weighted_interval_score(
-        y, q[0.5], np.array([q[t] for t in ci]), np.array([q[round(1 - t, 9)] for t in ci]),
-        np.array([2 * t for t in ci]), backend="numba")
+        y,
+        q[0.5],
+        np.array([q[t] for t in ci]),
+        np.array([q[round(1 - t, 9)] for t in ci]),
+        np.array([2 * t for t in ci]),
+        backend="numba",
+    )
     assert hand_wis(y, SEVEN, q) == pytest.approx(float(ref), rel=1e-12)
 
 
 def test_own_levels_scores_are_unchanged_in_the_item_table() -> None:
     # scores_by_item keeps each forecast's WIS on its own levels (Bracher et al. 2021)
     forecasts, observed = _panel(12, teams=TEAMS)
-    res = score_forecasts(_table(forecasts), _obs(observed), as_of=AS_OF,
-                          settings=ScoreSettings(baseline=BASE))
+    res = score_forecasts(
+        _table(forecasts), _obs(observed), as_of=AS_OF, settings=ScoreSettings(baseline=BASE)
+    )
     for row in res.by_item.itertuples(index=False):
         q = forecasts[(row.model, row.region)]
-        assert row.wis == pytest.approx(hand_wis(observed[row.region], tuple(sorted(q)), q),
-                                        rel=1e-12)
+        assert row.wis == pytest.approx(
+            hand_wis(observed[row.region], tuple(sorted(q)), q), rel=1e-12
+        )
 
 
 def test_identical_level_sets_reduce_to_the_old_result() -> None:
     # Every model on the same 7 levels: relative WIS is the pairwise definition on own WIS
     # (relative_skill, the old computation) and the hand value.
-    forecasts, observed = _panel(13, teams={"team-ash": SEVEN, "team-birch": SEVEN},
-                                 base_levels=SEVEN)
-    res = score_forecasts(_table(forecasts), _obs(observed), as_of=AS_OF,
-                          settings=ScoreSettings(baseline=BASE))
+    forecasts, observed = _panel(
+        13, teams={"team-ash": SEVEN, "team-birch": SEVEN}, base_levels=SEVEN
+    )
+    res = score_forecasts(
+        _table(forecasts), _obs(observed), as_of=AS_OF, settings=ScoreSettings(baseline=BASE)
+    )
     wis = res.by_item.pivot(index="region", columns="model", values="wis")
     models = list(wis.columns)
     old = relative_skill(wis.to_numpy().T, baseline=models.index(BASE)).relative
@@ -297,41 +322,67 @@ def test_the_generated_baseline_gives_the_members_levels() -> None:
     d1, d2, d3 = ISSUED, ISSUED + pd.Timedelta(days=7), ISSUED + pd.Timedelta(days=14)
     members = pd.concat(
         [
-            _rows("team-ash", "dale-00", _quantiles(SEVEN, 50, 5), issued=d1,
-                  week_ending=d1 + pd.Timedelta(days=5)),
-            _rows("team-ash", "dale-00", _quantiles(SEVEN, 50, 5), issued=d2,
-                  week_ending=d2 + pd.Timedelta(days=5)),
-            _rows("team-birch", "dale-00", _quantiles(NO_MEDIAN, 50, 5), issued=d2,
-                  week_ending=d2 + pd.Timedelta(days=5)),
+            _rows(
+                "team-ash",
+                "dale-00",
+                _quantiles(SEVEN, 50, 5),
+                issued=d1,
+                week_ending=d1 + pd.Timedelta(days=5),
+            ),
+            _rows(
+                "team-ash",
+                "dale-00",
+                _quantiles(SEVEN, 50, 5),
+                issued=d2,
+                week_ending=d2 + pd.Timedelta(days=5),
+            ),
+            _rows(
+                "team-birch",
+                "dale-00",
+                _quantiles(NO_MEDIAN, 50, 5),
+                issued=d2,
+                week_ending=d2 + pd.Timedelta(days=5),
+            ),
         ],
         ignore_index=True,
     )
-    weeks = pd.date_range(WEEK - pd.Timedelta(days=7 * 10), d3 - pd.Timedelta(days=2),
-                          freq="7D")
-    obs = pd.DataFrame({"region": "dale-00", "quantity": "admissions", "week_ending": weeks,
-                        "value": 40.0 + np.arange(weeks.size) % 4, "reported": pd.NaT}
-                       ).astype({"reported": "datetime64[ns]"})
-    table, generated = with_baseline(members, obs, issue_dates=[d1, d2, d3], name=BASE,
-                                     horizons=(1,))
+    weeks = pd.date_range(WEEK - pd.Timedelta(days=7 * 10), d3 - pd.Timedelta(days=2), freq="7D")
+    obs = pd.DataFrame(
+        {
+            "region": "dale-00",
+            "quantity": "admissions",
+            "week_ending": weeks,
+            "value": 40.0 + np.arange(weeks.size) % 4,
+            "reported": pd.NaT,
+        }
+    ).astype({"reported": "datetime64[ns]"})
+    table, generated = with_baseline(
+        members, obs, issue_dates=[d1, d2, d3], name=BASE, horizons=(1,)
+    )
     assert generated
     base = table.loc[table["model"] == BASE]
-    levels = {d: sorted(part["level"].round(9).unique())
-              for d, part in base.groupby("issued")}
+    levels = {d: sorted(part["level"].round(9).unique()) for d, part in base.groupby("issued")}
     assert levels[d1] == sorted(SEVEN)
     assert levels[d2] == sorted(set(SEVEN) | set(NO_MEDIAN))
     assert levels[d3] == sorted(STANDARD_LEVELS)  # no member that day: the standard levels
-    fixed, _ = with_baseline(members, obs, issue_dates=[d1], name=BASE, horizons=(1,),
-                             levels=(0.1, 0.5, 0.9))
+    fixed, _ = with_baseline(
+        members, obs, issue_dates=[d1], name=BASE, horizons=(1,), levels=(0.1, 0.5, 0.9)
+    )
     assert sorted(fixed.loc[fixed["model"] == BASE, "level"].round(9).unique()) == [0.1, 0.5, 0.9]
 
 
 def test_a_named_baseline_takes_no_weight() -> None:
     # Cooke (1991) ch. 12: w = C I 1{C >= alpha} / sum over the members; the baseline is
     # scored (relative WIS 1) but its weight is nan.
-    forecasts, observed = _panel(15, teams={"team-ash": NINE, "team-birch": NINE,
-                                            "team-dogwood": STANDARD_LEVELS})
-    res = score_forecasts(_table(forecasts), _obs(observed), as_of=AS_OF,
-                          settings=ScoreSettings(baseline=BASE, alpha=0.0))
+    forecasts, observed = _panel(
+        15, teams={"team-ash": NINE, "team-birch": NINE, "team-dogwood": STANDARD_LEVELS}
+    )
+    res = score_forecasts(
+        _table(forecasts),
+        _obs(observed),
+        as_of=AS_OF,
+        settings=ScoreSettings(baseline=BASE, alpha=0.0),
+    )
     s = res.by_model.set_index("model")
     assert np.isnan(s.loc[BASE, "weight"])
     assert s.loc[BASE, "relative_wis"] == pytest.approx(1.0)
@@ -354,9 +405,24 @@ def test_score_command_leaves_the_baseline_weight_empty(tmp_path: Path) -> None:
     obs = _obs(observed).drop(columns="reported")
     obs["week_ending"] = obs["week_ending"].dt.strftime("%Y-%m-%d")
     obs.to_csv(tmp_path / "observations.csv", index=False)
-    code = main(["score", "--forecasts", str(tmp_path / "forecasts.csv"), "--observations",
-                 str(tmp_path / "observations.csv"), "--as-of", f"{AS_OF:%Y-%m-%d}", "--out",
-                 str(tmp_path / "out"), "--baseline", BASE, "--alpha", "0", "-q"])
+    code = main(
+        [
+            "score",
+            "--forecasts",
+            str(tmp_path / "forecasts.csv"),
+            "--observations",
+            str(tmp_path / "observations.csv"),
+            "--as-of",
+            f"{AS_OF:%Y-%m-%d}",
+            "--out",
+            str(tmp_path / "out"),
+            "--baseline",
+            BASE,
+            "--alpha",
+            "0",
+            "-q",
+        ]
+    )
     assert code == 0
     s = pd.read_csv(tmp_path / "out" / "scores_by_model.csv").set_index("model")
     assert np.isnan(s.loc[BASE, "weight"])
@@ -374,11 +440,23 @@ def _season(folder: Path) -> Path:
     rng = np.random.default_rng(21)
     first = pd.Timestamp("2031-01-06")  # a Monday
     weeks = pd.date_range(first - pd.Timedelta(days=7 * 12 - 5), periods=30, freq="7D")
-    wave = {r: 60 + 40 * np.sin(np.arange(weeks.size) / 4 + k)
-            for k, r in enumerate(("vale-north", "vale-south"))}
-    obs = pd.concat([pd.DataFrame({"region": r, "quantity": "admissions",
-                                   "week_ending": weeks.strftime("%Y-%m-%d"),
-                                   "value": np.round(v)}) for r, v in wave.items()])
+    wave = {
+        r: 60 + 40 * np.sin(np.arange(weeks.size) / 4 + k)
+        for k, r in enumerate(("vale-north", "vale-south"))
+    }
+    obs = pd.concat(
+        [
+            pd.DataFrame(
+                {
+                    "region": r,
+                    "quantity": "admissions",
+                    "week_ending": weeks.strftime("%Y-%m-%d"),
+                    "value": np.round(v),
+                }
+            )
+            for r, v in wave.items()
+        ]
+    )
     obs.to_csv(folder / "observations.csv", index=False)
     teams = {"team-ash": NINE, "team-birch": NINE, "team-dogwood": ELEVEN}
     rows = []
@@ -390,10 +468,19 @@ def _season(folder: Path) -> Path:
                 target = issued + pd.Timedelta(days=7 * h - 2)
                 for k, (team, levels) in enumerate(teams.items()):
                     q = _quantiles(levels, last * np.exp(rng.normal(0, 0.1)), 6.0 + 4 * k)
-                    rows.append(pd.DataFrame({
-                        "model": team, "region": r, "quantity": "admissions",
-                        "issued": f"{issued:%Y-%m-%d}", "week_ending": f"{target:%Y-%m-%d}",
-                        "level": list(q), "value": np.round(list(q.values()), 3)}))
+                    rows.append(
+                        pd.DataFrame(
+                            {
+                                "model": team,
+                                "region": r,
+                                "quantity": "admissions",
+                                "issued": f"{issued:%Y-%m-%d}",
+                                "week_ending": f"{target:%Y-%m-%d}",
+                                "level": list(q),
+                                "value": np.round(list(q.values()), 3),
+                            }
+                        )
+                    )
     pd.concat(rows).to_csv(folder / "forecasts.csv", index=False)
     return folder
 
@@ -402,20 +489,24 @@ def test_weekly_scores_by_model_weight_equals_weights_csv(tmp_path: Path) -> Non
     from forebrief.app.weekly import run_briefing
 
     folder = _season(tmp_path)
-    cfg = config_from_dict({
-        "forecasts": [str(folder / "forecasts.csv")],
-        "observations": [str(folder / "observations.csv")],
-        "archive": str(folder / "archive"),
-        "horizons": [1, 2], "window": 6, "min_items": 2, "backtest_weeks": 2,
-    })
+    cfg = config_from_dict(
+        {
+            "forecasts": [str(folder / "forecasts.csv")],
+            "observations": [str(folder / "observations.csv")],
+            "archive": str(folder / "archive"),
+            "horizons": [1, 2],
+            "window": 6,
+            "min_items": 2,
+            "backtest_weeks": 2,
+        }
+    )
     inputs = load_inputs(cfg.forecasts, cfg.observations)
     run = run_briefing(cfg, inputs)
     tables = run.tables()
     by_model = tables["scores_by_model.csv"]
     weights = tables["weights.csv"]
     keys = ["quantity", "horizon", "model"]
-    merged = by_model.merge(weights[[*keys, "weight"]], on=keys, how="left",
-                            suffixes=("", "_used"))
+    merged = by_model.merge(weights[[*keys, "weight"]], on=keys, how="left", suffixes=("", "_used"))
     assert len(merged) == len(by_model)
     members = merged["model"] != cfg.baseline
     assert members.any()
@@ -428,12 +519,22 @@ def test_weekly_scores_by_model_weight_equals_weights_csv(tmp_path: Path) -> Non
 
 def test_baseline_command_takes_levels(tmp_path: Path) -> None:
     weeks = pd.date_range(WEEK - pd.Timedelta(days=7 * 8), WEEK, freq="7D")
-    pd.DataFrame({"region": "dale-00", "quantity": "admissions",
-                  "week_ending": weeks.strftime("%Y-%m-%d"),
-                  "value": 40.0 + np.arange(weeks.size) % 3}).to_csv(tmp_path / "obs.csv",
-                                                                      index=False)
-    args = ["baseline", "--observations", str(tmp_path / "obs.csv"), "--issued",
-            f"{WEEK + pd.Timedelta(days=2):%Y-%m-%d}", "-q"]
+    pd.DataFrame(
+        {
+            "region": "dale-00",
+            "quantity": "admissions",
+            "week_ending": weeks.strftime("%Y-%m-%d"),
+            "value": 40.0 + np.arange(weeks.size) % 3,
+        }
+    ).to_csv(tmp_path / "obs.csv", index=False)
+    args = [
+        "baseline",
+        "--observations",
+        str(tmp_path / "obs.csv"),
+        "--issued",
+        f"{WEEK + pd.Timedelta(days=2):%Y-%m-%d}",
+        "-q",
+    ]
     assert main([*args, "--out", str(tmp_path / "seven.csv"), "--levels", *map(str, SEVEN)]) == 0
     assert sorted(pd.read_csv(tmp_path / "seven.csv")["level"].unique()) == list(SEVEN)
     assert main([*args, "--out", str(tmp_path / "standard.csv")]) == 0

@@ -226,8 +226,11 @@ def test_the_text_is_the_narrative_of_the_facts(run: BriefingRun) -> None:
 def test_the_methods_note_names_the_configured_levels(first_run: BriefingRun) -> None:
     facts = dataclasses.replace(
         first_run.facts,
-        methods={**first_run.facts.methods, "levels": [0.1, 0.5, 0.9],
-                 "levels_text": "10, 50 and 90%"},
+        methods={
+            **first_run.facts.methods,
+            "levels": [0.1, 0.5, 0.9],
+            "levels_text": "10, 50 and 90%",
+        },
     )
     methods = next(s for s in build_narrative(facts).sections if s.key == "methods")
     text = " ".join(methods.paragraphs)
@@ -311,8 +314,8 @@ def test_probabilities_are_given_as_frequencies(demo_run: BriefingRun) -> None:
     texts |= {
         o.p_above_threshold_text
         for o in demo_run.facts.outlook
-        if risk and (o.region, o.quantity, o.horizon)
-        == (risk["region"], risk["quantity"], risk["horizon"])
+        if risk
+        and (o.region, o.quantity, o.horizon) == (risk["region"], risk["quantity"], risk["horizon"])
     }
     assert texts
     flat = " ".join(demo_run.text.split())

@@ -227,9 +227,14 @@ def test_pdf_pages_are_not_blank(pdf_bytes: bytes, reader: Any, tmp_path: Path) 
         # a short last page (the end of the methods note) is about 1% ink; a page with only
         # its running header and footer has no body text
         assert share > 0.005, f"{png.name}: only {share:.2%} non-white pixels"
-        body = [ln for ln in (reader.pages[i].extract_text() or "").splitlines()
-                if ln.strip() and "Page " not in ln and "issued" not in ln
-                and "does not make them" not in ln]
+        body = [
+            ln
+            for ln in (reader.pages[i].extract_text() or "").splitlines()
+            if ln.strip()
+            and "Page " not in ln
+            and "issued" not in ln
+            and "does not make them" not in ln
+        ]
         assert sum(len(ln) for ln in body) > 100, f"{png.name}: no body text"
         shutil.copy(png, ARTIFACTS / f"briefing-{png.name}")
 

@@ -44,15 +44,35 @@ _SECTIONS = {
     "briefing": {"title", "audience", "jurisdiction", "contact", "paper", "templates_dir"},
     "inputs": {"forecasts", "observations", "columns"},
     "archive": {"folder"},
-    "scoring": {"window", "alpha", "levels", "overshoot", "min_items", "power", "background",
-                "baseline", "horizons", "backtest_weeks", "settle_weeks"},
+    "scoring": {
+        "window",
+        "alpha",
+        "levels",
+        "overshoot",
+        "min_items",
+        "power",
+        "background",
+        "baseline",
+        "horizons",
+        "backtest_weeks",
+        "settle_weeks",
+    },
     "nowcast": {"recent_weeks"},
     "ensemble": {"headline"},
     "jurisdiction": {"total_region"},
     "regions": None,  # free keys: region ids
     "quantities": None,  # free keys: quantity ids
-    "email": {"from", "to", "cc", "subject", "smtp_host", "smtp_port", "security", "user",
-              "password_env"},
+    "email": {
+        "from",
+        "to",
+        "cc",
+        "subject",
+        "smtp_host",
+        "smtp_port",
+        "security",
+        "user",
+        "password_env",
+    },
 }
 
 
@@ -66,15 +86,29 @@ def _err(source: Path | None, key: str, problem: str, fix: str) -> ConfigError:
 
 def _string(value: Any, key: str, source: Path | None, *, empty_ok: bool = False) -> str:
     if not isinstance(value, str) or (not empty_ok and not value.strip()):
-        raise _err(source, key, f"must be a non-empty text; got {value!r}",
-                   f'write it in quotes, e.g. {key.split(".")[-1]} = "..."')
+        raise _err(
+            source,
+            key,
+            f"must be a non-empty text; got {value!r}",
+            f'write it in quotes, e.g. {key.split(".")[-1]} = "..."',
+        )
     return value
 
 
-def _number(value: Any, key: str, source: Path | None, *, low: float | None = None,
-            high: float | None = None, integer: bool = False) -> float:
-    ok = (isinstance(value, int | float) and not isinstance(value, bool)
-          and math.isfinite(float(value)))
+def _number(
+    value: Any,
+    key: str,
+    source: Path | None,
+    *,
+    low: float | None = None,
+    high: float | None = None,
+    integer: bool = False,
+) -> float:
+    ok = (
+        isinstance(value, int | float)
+        and not isinstance(value, bool)
+        and math.isfinite(float(value))
+    )
     if ok and integer and not float(value).is_integer():
         ok = False
     if ok and low is not None and value < low:
@@ -88,8 +122,12 @@ def _number(value: Any, key: str, source: Path | None, *, low: float | None = No
             bounds = f" between {low:g} and {high:g}"
         elif low is not None:
             bounds = f" of at least {low:g}"
-        raise _err(source, key, f"must be {kind}{bounds}; got {value!r}",
-                   f"write for example {key.split('.')[-1]} = {low if low is not None else 1:g}")
+        raise _err(
+            source,
+            key,
+            f"must be {kind}{bounds}; got {value!r}",
+            f"write for example {key.split('.')[-1]} = {low if low is not None else 1:g}",
+        )
     return float(value)
 
 
@@ -103,23 +141,36 @@ def _paths(value: Any, key: str, base: Path, source: Path | None) -> tuple[Path,
     return tuple(out)
 
 
-def parse_config(data: Mapping[str, Any], *, source: Path | None = None,
-                 base: Path | None = None) -> BriefingConfig:
+def parse_config(
+    data: Mapping[str, Any], *, source: Path | None = None, base: Path | None = None
+) -> BriefingConfig:
     """Build a :class:`BriefingConfig` from parsed TOML, checking every key."""
     base = base or (source.parent if source else Path.cwd())
     for section, value in data.items():
         if section not in _SECTIONS:
-            raise _err(source, section, "is not a known section",
-                       "use one of " + ", ".join(f"[{s}]" for s in _SECTIONS))
+            raise _err(
+                source,
+                section,
+                "is not a known section",
+                "use one of " + ", ".join(f"[{s}]" for s in _SECTIONS),
+            )
         if not isinstance(value, Mapping):
-            raise _err(source, section, f"must be a table ([{section}]); got {value!r}",
-                       f"put its keys under a [{section}] heading")
+            raise _err(
+                source,
+                section,
+                f"must be a table ([{section}]); got {value!r}",
+                f"put its keys under a [{section}] heading",
+            )
         allowed = _SECTIONS[section]
         if allowed is not None:
             for key in value:
                 if key not in allowed:
-                    raise _err(source, f"{section}.{key}", "is not a known key",
-                               f"use one of {', '.join(sorted(allowed))} in [{section}]")
+                    raise _err(
+                        source,
+                        f"{section}.{key}",
+                        "is not a known key",
+                        f"use one of {', '.join(sorted(allowed))} in [{section}]",
+                    )
     cfg: dict[str, Any] = {"source": source}
     b = data.get("briefing", {})
     for key in ("title", "audience", "jurisdiction"):
@@ -129,12 +180,15 @@ def parse_config(data: Mapping[str, Any], *, source: Path | None = None,
         cfg["contact"] = _string(b["contact"], "briefing.contact", source, empty_ok=True)
     if "paper" in b:
         if b["paper"] not in ("A4", "letter"):
-            raise _err(source, "briefing.paper", f"must be 'A4' or 'letter'; got {b['paper']!r}",
-                       'write paper = "A4" or paper = "letter"')
+            raise _err(
+                source,
+                "briefing.paper",
+                f"must be 'A4' or 'letter'; got {b['paper']!r}",
+                'write paper = "A4" or paper = "letter"',
+            )
         cfg["paper"] = b["paper"]
     if "templates_dir" in b:
-        cfg["templates_dir"] = _paths(b["templates_dir"], "briefing.templates_dir", base,
-                                      source)[0]
+        cfg["templates_dir"] = _paths(b["templates_dir"], "briefing.templates_dir", base, source)[0]
     i = data.get("inputs", {})
     if "forecasts" in i:
         cfg["forecasts"] = _paths(i["forecasts"], "inputs.forecasts", base, source)
@@ -143,8 +197,12 @@ def parse_config(data: Mapping[str, Any], *, source: Path | None = None,
     if "columns" in i:
         cols = i["columns"]
         if not isinstance(cols, Mapping) or not all(isinstance(v, str) for v in cols.values()):
-            raise _err(source, "inputs.columns", f"must map our column names to yours; got "
-                       f"{cols!r}", 'write columns = { value = "quantile_value" }')
+            raise _err(
+                source,
+                "inputs.columns",
+                f"must map our column names to yours; got {cols!r}",
+                'write columns = { value = "quantile_value" }',
+            )
         cfg["columns"] = {str(theirs): str(ours) for ours, theirs in cols.items()}
     a = data.get("archive", {})
     # the default archive folder sits beside the configuration file (README: [archive])
@@ -152,8 +210,9 @@ def parse_config(data: Mapping[str, Any], *, source: Path | None = None,
     _parse_scoring(data.get("scoring", {}), cfg, source)
     n = data.get("nowcast", {})
     if "recent_weeks" in n:
-        cfg["nowcast_weeks"] = int(_number(n["recent_weeks"], "nowcast.recent_weeks", source,
-                                           low=2, integer=True))
+        cfg["nowcast_weeks"] = int(
+            _number(n["recent_weeks"], "nowcast.recent_weeks", source, low=2, integer=True)
+        )
     e = data.get("ensemble", {})
     if "headline" in e:
         cfg["headline"] = check_headline(e["headline"], key="ensemble.headline", source=source)
@@ -161,27 +220,37 @@ def parse_config(data: Mapping[str, Any], *, source: Path | None = None,
     for rid, r in data.get("regions", {}).items():
         key = f"regions.{rid}"
         if not isinstance(r, Mapping):
-            raise _err(source, key, f"must be a table; got {r!r}",
-                       f'write [regions.{rid}] with name = "..." and population = ...')
+            raise _err(
+                source,
+                key,
+                f"must be a table; got {r!r}",
+                f'write [regions.{rid}] with name = "..." and population = ...',
+            )
         for k in r:
             if k not in ("name", "population", "thresholds"):
-                raise _err(source, f"{key}.{k}", "is not a known key",
-                           "use name, population or thresholds")
+                raise _err(
+                    source, f"{key}.{k}", "is not a known key", "use name, population or thresholds"
+                )
         pop = None
         if "population" in r:
             pop = _number(r["population"], f"{key}.population", source, low=1)
         regions[rid] = RegionInfo(rid, _string(r.get("name", rid), f"{key}.name", source), pop)
         thresholds = r.get("thresholds", {})
         if not isinstance(thresholds, Mapping):
-            raise _err(source, f"{key}.thresholds", f"must be a table of quantities; got "
-                       f"{thresholds!r}", f"write thresholds.admissions = 300 under [regions.{rid}]")
+            raise _err(
+                source,
+                f"{key}.thresholds",
+                f"must be a table of quantities; got {thresholds!r}",
+                f"write thresholds.admissions = 300 under [regions.{rid}]",
+            )
         for q, t in thresholds.items():
             tkey = f"{key}.thresholds.{q}"
             if isinstance(t, Mapping):
                 for k in t:
                     if k not in ("value", "label"):
-                        raise _err(source, f"{tkey}.{k}", "is not a known key",
-                                   "use value and label")
+                        raise _err(
+                            source, f"{tkey}.{k}", "is not a known key", "use value and label"
+                        )
                 value = _number(t.get("value"), f"{tkey}.value", source)
                 label = _string(t.get("label", "alert threshold"), f"{tkey}.label", source)
             else:
@@ -194,15 +263,23 @@ def parse_config(data: Mapping[str, Any], *, source: Path | None = None,
     for qid, q in data.get("quantities", {}).items():
         key = f"quantities.{qid}"
         if not isinstance(q, Mapping):
-            raise _err(source, key, f"must be a table; got {q!r}",
-                       f'write [quantities.{qid}] with name = "..." and unit = "..."')
+            raise _err(
+                source,
+                key,
+                f"must be a table; got {q!r}",
+                f'write [quantities.{qid}] with name = "..." and unit = "..."',
+            )
         for k in q:
             if k not in ("name", "unit", "signed"):
                 raise _err(source, f"{key}.{k}", "is not a known key", "use name, unit or signed")
         signed = q.get("signed", False)
         if not isinstance(signed, bool):
-            raise _err(source, f"{key}.signed", f"must be true or false; got {signed!r}",
-                       "write signed = true only for quantities that can be negative")
+            raise _err(
+                source,
+                f"{key}.signed",
+                f"must be true or false; got {signed!r}",
+                "write signed = true only for quantities that can be negative",
+            )
         quantities[qid] = QuantityInfo(
             qid,
             _string(q.get("name", qid), f"{key}.name", source),
@@ -214,9 +291,12 @@ def parse_config(data: Mapping[str, Any], *, source: Path | None = None,
     if "total_region" in j:
         total = _string(j["total_region"], "jurisdiction.total_region", source)
         if regions and total not in regions:
-            raise _err(source, "jurisdiction.total_region",
-                       f"names region {total!r}, which has no [regions.{total}] table",
-                       "add the region, or correct the id")
+            raise _err(
+                source,
+                "jurisdiction.total_region",
+                f"names region {total!r}, which has no [regions.{total}] table",
+                "add the region, or correct the id",
+            )
         cfg["total_region"] = total
     if "email" in data:
         cfg["email"] = _parse_email(data["email"], source)
@@ -234,19 +314,27 @@ def _parse_scoring(s: Mapping[str, Any], cfg: dict[str, Any], source: Path | Non
     if "levels" in s:
         lv = s["levels"]
         if not isinstance(lv, list) or not lv:
-            raise _err(source, "scoring.levels", f"must be a list of levels; got {lv!r}",
-                       "write levels = [0.05, 0.25, 0.5, 0.75, 0.95]")
+            raise _err(
+                source,
+                "scoring.levels",
+                f"must be a list of levels; got {lv!r}",
+                "write levels = [0.05, 0.25, 0.5, 0.75, 0.95]",
+            )
         vals = tuple(_number(v, "scoring.levels", source, low=0, high=1) for v in lv)
-        if any(b <= a for a, b in itertools.pairwise(vals)) or vals[0] <= 0 or \
-                vals[-1] >= 1:
-            raise _err(source, "scoring.levels", f"must rise strictly inside (0, 1); got {lv!r}",
-                       "write levels = [0.05, 0.25, 0.5, 0.75, 0.95]")
+        if any(b <= a for a, b in itertools.pairwise(vals)) or vals[0] <= 0 or vals[-1] >= 1:
+            raise _err(
+                source,
+                "scoring.levels",
+                f"must rise strictly inside (0, 1); got {lv!r}",
+                "write levels = [0.05, 0.25, 0.5, 0.75, 0.95]",
+            )
         cfg["levels"] = vals
     if "overshoot" in s:
         cfg["overshoot"] = _number(s["overshoot"], "scoring.overshoot", source, low=0)
     if "min_items" in s:
-        cfg["min_items"] = int(_number(s["min_items"], "scoring.min_items", source, low=0,
-                                       integer=True))
+        cfg["min_items"] = int(
+            _number(s["min_items"], "scoring.min_items", source, low=0, integer=True)
+        )
     if "power" in s:
         p = _number(s["power"], "scoring.power", source, low=0, high=1)
         if p == 0:
@@ -254,34 +342,44 @@ def _parse_scoring(s: Mapping[str, Any], cfg: dict[str, Any], source: Path | Non
         cfg["power"] = p
     if "background" in s:
         if s["background"] not in ("uniform", "log"):
-            raise _err(source, "scoring.background",
-                       f"must be 'uniform' or 'log'; got {s['background']!r}",
-                       'write background = "uniform"')
+            raise _err(
+                source,
+                "scoring.background",
+                f"must be 'uniform' or 'log'; got {s['background']!r}",
+                'write background = "uniform"',
+            )
         cfg["background"] = s["background"]
     if "baseline" in s:
         cfg["baseline"] = _string(s["baseline"], "scoring.baseline", source)
     if "horizons" in s:
         h = s["horizons"]
         if not isinstance(h, list) or not h:
-            raise _err(source, "scoring.horizons", f"must be a list of weeks ahead; got {h!r}",
-                       "write horizons = [1, 2, 3, 4]")
+            raise _err(
+                source,
+                "scoring.horizons",
+                f"must be a list of weeks ahead; got {h!r}",
+                "write horizons = [1, 2, 3, 4]",
+            )
         cfg["horizons"] = tuple(
             sorted({int(_number(v, "scoring.horizons", source, low=1, integer=True)) for v in h})
         )
     if "settle_weeks" in s:
-        cfg["settle_weeks"] = check_settle_weeks(s["settle_weeks"], key="scoring.settle_weeks",
-                                                 source=source)
+        cfg["settle_weeks"] = check_settle_weeks(
+            s["settle_weeks"], key="scoring.settle_weeks", source=source
+        )
     if "backtest_weeks" in s:
-        cfg["backtest_weeks"] = int(_number(s["backtest_weeks"], "scoring.backtest_weeks",
-                                            source, low=1, integer=True))
+        cfg["backtest_weeks"] = int(
+            _number(s["backtest_weeks"], "scoring.backtest_weeks", source, low=1, integer=True)
+        )
 
 
 #: Combinations the headline may use ("auto" applies the rule of :mod:`forebrief.tables.compare`).
 HEADLINE_METHODS: tuple[str, ...] = COMBINATIONS
 
 
-def check_headline(value: Any, *, key: str = "ensemble.headline",
-                   source: Path | None = None) -> str:
+def check_headline(
+    value: Any, *, key: str = "ensemble.headline", source: Path | None = None
+) -> str:
     """'auto' or one combination's name; anything else names the valid choices."""
     if value == "auto" or value in HEADLINE_METHODS:
         return str(value)
@@ -289,8 +387,9 @@ def check_headline(value: Any, *, key: str = "ensemble.headline",
     raise _err(source, key, f"must be one of {choices}; got {value!r}", 'write headline = "auto"')
 
 
-def check_settle_weeks(value: Any, *, key: str = "scoring.settle_weeks",
-                       source: Path | None = None) -> int | Literal["auto"]:
+def check_settle_weeks(
+    value: Any, *, key: str = "scoring.settle_weeks", source: Path | None = None
+) -> int | Literal["auto"]:
     """'auto' (estimated from the vintages) or a whole number of weeks >= 0."""
     if value == "auto":
         return "auto"
@@ -298,9 +397,12 @@ def check_settle_weeks(value: Any, *, key: str = "scoring.settle_weeks",
         try:
             value = int(value)
         except ValueError:
-            raise _err(source, key, f"must be 'auto' or a whole number of weeks >= 0; got "
-                       f"{value!r}", 'write settle_weeks = "auto", or 0 to score every week'
-                       ) from None
+            raise _err(
+                source,
+                key,
+                f"must be 'auto' or a whole number of weeks >= 0; got {value!r}",
+                'write settle_weeks = "auto", or 0 to score every week',
+            ) from None
     return int(_number(value, key, source, low=0, integer=True))
 
 
@@ -321,13 +423,17 @@ def _parse_email(e: Mapping[str, Any], source: Path | None) -> EmailConfig:
         if key in e:
             out[key] = _string(e[key], f"email.{key}", source)
     if "smtp_port" in e:
-        out["smtp_port"] = int(_number(e["smtp_port"], "email.smtp_port", source, low=1,
-                                       high=65535, integer=True))
+        out["smtp_port"] = int(
+            _number(e["smtp_port"], "email.smtp_port", source, low=1, high=65535, integer=True)
+        )
     if "security" in e:
         if e["security"] not in ("starttls", "ssl", "none"):
-            raise _err(source, "email.security",
-                       f"must be 'starttls', 'ssl' or 'none'; got {e['security']!r}",
-                       'write security = "starttls"')
+            raise _err(
+                source,
+                "email.security",
+                f"must be 'starttls', 'ssl' or 'none'; got {e['security']!r}",
+                'write security = "starttls"',
+            )
         out["security"] = e["security"]
     return EmailConfig(**out)
 
@@ -338,11 +444,12 @@ def load_config(path: Path) -> BriefingConfig:
         with path.open("rb") as fh:
             data = tomllib.load(fh)
     except FileNotFoundError:
-        raise ConfigError(f"{path}: no such configuration file; fix: check the path, or run "
-                          "without --config to use the defaults") from None
+        raise ConfigError(
+            f"{path}: no such configuration file; fix: check the path, or run "
+            "without --config to use the defaults"
+        ) from None
     except tomllib.TOMLDecodeError as exc:
-        raise ConfigError(f"{path}: not valid TOML ({exc}); fix: correct the line named") \
-            from None
+        raise ConfigError(f"{path}: not valid TOML ({exc}); fix: correct the line named") from None
     return parse_config(data, source=path.resolve())
 
 

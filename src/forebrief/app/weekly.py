@@ -91,8 +91,10 @@ def latest_issue_date(forecasts: pd.DataFrame, *, baseline: str | None) -> pd.Ti
     """The latest issue date among the member forecasts."""
     f = forecasts if baseline is None else forecasts.loc[forecasts["model"] != baseline]
     if f.empty:
-        raise ConfigError("the forecasts hold no usable rows, so there is no issue date; fix: "
-                          "run forebrief check on them and correct the errors it lists")
+        raise ConfigError(
+            "the forecasts hold no usable rows, so there is no issue date; fix: "
+            "run forebrief check on them and correct the errors it lists"
+        )
     return pd.Timestamp(f["issued"].max())
 
 
@@ -115,23 +117,37 @@ def run_briefing(
     """Run the whole weekly job on validated inputs; returns the record's contents."""
     step = stage or (lambda _name: None)
     forecasts = inputs.forecasts.table
-    d = pd.Timestamp(issued) if issued is not None else latest_issue_date(
-        forecasts, baseline=cfg.baseline)
+    d = (
+        pd.Timestamp(issued)
+        if issued is not None
+        else latest_issue_date(forecasts, baseline=cfg.baseline)
+    )
     obs = known_by(inputs.observations.table, d)
     step("nowcast of the provisional weeks")
     settle = settle_info(obs, issued=d, setting=cfg.settle_weeks)
     nowcast = nowcast_table(obs, as_of=d, recent_weeks=cfg.nowcast_weeks)
     settings = EnsembleSettings(
-        window=cfg.window, alpha=cfg.alpha, min_items=cfg.min_items, baseline=cfg.baseline,
-        levels=cfg.levels, overshoot=cfg.overshoot, background=cfg.background,
-        power=cfg.power, signed=cfg.signed, settle_weeks=int(settle["weeks"]),
+        window=cfg.window,
+        alpha=cfg.alpha,
+        min_items=cfg.min_items,
+        baseline=cfg.baseline,
+        levels=cfg.levels,
+        overshoot=cfg.overshoot,
+        background=cfg.background,
+        power=cfg.power,
+        signed=cfg.signed,
+        settle_weeks=int(settle["weeks"]),
     )
     step("persistence baseline")
-    member_dates = issue_dates_between(forecasts, pd.Timestamp.min, d,
-                                       exclude={cfg.baseline})
-    table, generated = with_baseline(forecasts, obs, issue_dates=member_dates,
-                                     name=cfg.baseline, horizons=cfg.horizons,
-                                     signed=cfg.signed)
+    member_dates = issue_dates_between(forecasts, pd.Timestamp.min, d, exclude={cfg.baseline})
+    table, generated = with_baseline(
+        forecasts,
+        obs,
+        issue_dates=member_dates,
+        name=cfg.baseline,
+        horizons=cfg.horizons,
+        signed=cfg.signed,
+    )
     baseline = table.loc[(table["model"] == cfg.baseline) & (table["issued"] == d)]
     baseline = baseline.drop(columns=["horizon"], errors="ignore").reset_index(drop=True)
     step("scoring the models")
@@ -142,15 +158,25 @@ def run_briefing(
     scores = None
     if history.as_of is not None:
         alpha = 0.05 if cfg.alpha == "auto" else float(cfg.alpha)
-        score_settings = ScoreSettings(window=cfg.window, alpha=alpha, baseline=cfg.baseline,
-                                       levels=cfg.levels, overshoot=cfg.overshoot,
-                                       background=cfg.background, power=cfg.power)
-        members = forecasts.loc[(forecasts["issued"] < d)
-                                & (forecasts["model"] != cfg.baseline)]
-        scores = score_forecasts(members, history.observations, as_of=history.as_of,
-                                 settings=score_settings)
-        with_base = score_forecasts(table.loc[table["issued"] < d], history.observations,
-                                    as_of=history.as_of, settings=score_settings)
+        score_settings = ScoreSettings(
+            window=cfg.window,
+            alpha=alpha,
+            baseline=cfg.baseline,
+            levels=cfg.levels,
+            overshoot=cfg.overshoot,
+            background=cfg.background,
+            power=cfg.power,
+        )
+        members = forecasts.loc[(forecasts["issued"] < d) & (forecasts["model"] != cfg.baseline)]
+        scores = score_forecasts(
+            members, history.observations, as_of=history.as_of, settings=score_settings
+        )
+        with_base = score_forecasts(
+            table.loc[table["issued"] < d],
+            history.observations,
+            as_of=history.as_of,
+            settings=score_settings,
+        )
     step("building the ensembles")
     ens = build_ensemble(forecasts, obs, issued=d, settings=settings, history=history)
     if scores is not None:
@@ -163,35 +189,64 @@ def run_briefing(
         bt = backtest(forecasts, obs, start=start, end=end, settings=settings, rating_date=d)
     headline = choose_headlines(cfg, ens, bt)
     step("facts and narrative")
-    revisions = pd.DataFrame(columns=["region", "quantity", "week_ending", "value_then",
-                                      "value_now", "change"])
+    revisions = pd.DataFrame(
+        columns=["region", "quantity", "week_ending", "value_then", "value_now", "change"]
+    )
     if previous and previous.get("issued"):
-        revisions = revisions_between(inputs.observations.table,
-                                      earlier=pd.Timestamp(previous["issued"]), later=d)
+        revisions = revisions_between(
+            inputs.observations.table, earlier=pd.Timestamp(previous["issued"]), later=d
+        )
         revisions = revisions.loc[revisions["week_ending"] < d]
     facts = build_facts(
-        cfg=cfg, issued=d, tool_version=__version__, observations=obs, forecasts=table,
-        scores=scores, ensemble=ens, backtest=bt, excluded=inputs.excluded,
-        previous=previous, revisions=revisions, nowcast=nowcast, settle=settle,
+        cfg=cfg,
+        issued=d,
+        tool_version=__version__,
+        observations=obs,
+        forecasts=table,
+        scores=scores,
+        ensemble=ens,
+        backtest=bt,
+        excluded=inputs.excluded,
+        previous=previous,
+        revisions=revisions,
+        nowcast=nowcast,
+        settle=settle,
         headline=headline,
     )
     narrative = build_narrative(facts)
     text = narrative_text(facts, narrative)
-    return BriefingRun(d, cfg, inputs, scores, ens, bt, facts, narrative, text, baseline,
-                       generated, nowcast, settle, headline)
+    return BriefingRun(
+        d,
+        cfg,
+        inputs,
+        scores,
+        ens,
+        bt,
+        facts,
+        narrative,
+        text,
+        baseline,
+        generated,
+        nowcast,
+        settle,
+        headline,
+    )
 
 
-def settle_info(observations: pd.DataFrame, *, issued: pd.Timestamp,
-                setting: int | str) -> dict[str, Any]:
+def settle_info(
+    observations: pd.DataFrame, *, issued: pd.Timestamp, setting: int | str
+) -> dict[str, Any]:
     """The settle delay used for ratings on ``issued``, and where it came from.
 
     ``setting`` is the configuration's ``settle_weeks``: a number is used as given; ``"auto"``
     estimates it from the vintages known on ``issued`` (:func:`forebrief.tables.nowcast.
     settle_delay`). Without vintages the delay is 0 and revisions cannot be checked.
     """
-    has_vintages = bool("reported" in observations and observations["reported"].notna().any()
-                        and observations.duplicated(
-                            ["region", "quantity", "week_ending"]).any())
+    has_vintages = bool(
+        "reported" in observations
+        and observations["reported"].notna().any()
+        and observations.duplicated(["region", "quantity", "week_ending"]).any()
+    )
     if setting != "auto":
         weeks, source = int(setting), "configured"
     elif has_vintages:
@@ -201,8 +256,9 @@ def settle_info(observations: pd.DataFrame, *, issued: pd.Timestamp,
     return {"weeks": weeks, "source": source, "has_vintages": has_vintages}
 
 
-def choose_headlines(cfg: BriefingConfig, ens: EnsembleResult,
-                     bt: BacktestResult | None) -> tuple[dict[str, Any], ...]:
+def choose_headlines(
+    cfg: BriefingConfig, ens: EnsembleResult, bt: BacktestResult | None
+) -> tuple[dict[str, Any], ...]:
     """The headline combination of each quantity, chosen on its back-test record.
 
     ``[ensemble] headline = "auto"`` applies the rule of :func:`forebrief.tables.compare.
@@ -213,19 +269,25 @@ def choose_headlines(cfg: BriefingConfig, ens: EnsembleResult,
     forced = None if cfg.headline == "auto" else cfg.headline
     quantities = sorted(set(ens.ensemble["quantity"]))
     out = []
-    empty = pd.DataFrame(columns=["model", "region", "quantity", "week_ending", "horizon",
-                                  "issued", "wis"])
+    empty = pd.DataFrame(
+        columns=["model", "region", "quantity", "week_ending", "horizon", "issued", "wis"]
+    )
     for q in quantities:
         by_item = bt.by_item if bt is not None else empty
-        entry = choose_headline(by_item, quantity=q, default="quantile_median",
-                                candidates=[m for m in methods if m != "quantile_median"],
-                                forced=forced)
+        entry = choose_headline(
+            by_item,
+            quantity=q,
+            default="quantile_median",
+            candidates=[m for m in methods if m != "quantile_median"],
+            forced=forced,
+        )
         out.append({"quantity": q, **entry})
     return tuple(out)
 
 
-def _with_relative(scores: ScoreResult, with_base: ScoreResult, baseline: str, *,
-                   weights: pd.DataFrame) -> ScoreResult:
+def _with_relative(
+    scores: ScoreResult, with_base: ScoreResult, baseline: str, *, weights: pd.DataFrame
+) -> ScoreResult:
     """Members' scores (panel without the baseline) with relative WIS against the baseline.
 
     The baseline's own row comes from the run that includes it (its Classical Model columns use
@@ -241,21 +303,32 @@ def _with_relative(scores: ScoreResult, with_base: ScoreResult, baseline: str, *
         out = ours.drop(columns=["relative_wis"]).merge(rel, on=keys, how="left")
         out = out[list(ours.columns)]
         base = theirs.loc[theirs["model"] == baseline, list(ours.columns)].assign(
-            weight=float("nan"))  # the baseline is not a member: it has no weight
-        return pd.concat([out, base], ignore_index=True).sort_values(
-            keys, kind="stable").reset_index(drop=True)
+            weight=float("nan")
+        )  # the baseline is not a member: it has no weight
+        return (
+            pd.concat([out, base], ignore_index=True)
+            .sort_values(keys, kind="stable")
+            .reset_index(drop=True)
+        )
 
     keys = ["quantity", "horizon", "model"]
     by_model = merge(scores.by_model, with_base.by_model, keys)
     used = weights.loc[weights["model"] != baseline, [*keys, "weight"]].astype(
-        {"horizon": by_model["horizon"].dtype})
+        {"horizon": by_model["horizon"].dtype}
+    )
     by_model = by_model.drop(columns=["weight"]).merge(
-        used, on=keys, how="left", validate="one_to_one")[list(by_model.columns)]
+        used, on=keys, how="left", validate="one_to_one"
+    )[list(by_model.columns)]
     return replace(
         scores,
         by_model=by_model,
-        by_model_region=merge(scores.by_model_region, with_base.by_model_region,
-                              ["quantity", "horizon", "region", "model"]),
-        by_item=pd.concat([scores.by_item, with_base.by_item.loc[
-            with_base.by_item["model"] == baseline]], ignore_index=True),
+        by_model_region=merge(
+            scores.by_model_region,
+            with_base.by_model_region,
+            ["quantity", "horizon", "region", "model"],
+        ),
+        by_item=pd.concat(
+            [scores.by_item, with_base.by_item.loc[with_base.by_item["model"] == baseline]],
+            ignore_index=True,
+        ),
     )

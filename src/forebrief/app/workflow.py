@@ -65,9 +65,12 @@ def input_label(path: Path, label_root: Path | None) -> str:
     return str(path)
 
 
-def _read_all(spec: PathSpec, columns: Mapping[str, str] | None,
-              kind: str, label_root: Path | None = None,
-              ) -> tuple[list[RawFile], list[Problem], pd.DataFrame]:
+def _read_all(
+    spec: PathSpec,
+    columns: Mapping[str, str] | None,
+    kind: str,
+    label_root: Path | None = None,
+) -> tuple[list[RawFile], list[Problem], pd.DataFrame]:
     """Read every file of ``spec``; a file that cannot be read is reported and excluded.
 
     One team's broken file must not stop the others: it becomes an error ``Problem`` and an
@@ -89,11 +92,22 @@ def _read_all(spec: PathSpec, columns: Mapping[str, str] | None,
             message, sep, fix = text.rpartition("; fix: ")
             if not sep:
                 message, fix = text, "check the file"
-            problems.append(Problem("error", "unreadable-file", label, (), "", "", (), message,
-                                    fix))
-            excluded.append({"kind": kind, "file": label, "rows": "all", "model": "",
-                             "region": "", "quantity": "", "issued": "", "week_ending": "",
-                             "reason": message})
+            problems.append(
+                Problem("error", "unreadable-file", label, (), "", "", (), message, fix)
+            )
+            excluded.append(
+                {
+                    "kind": kind,
+                    "file": label,
+                    "rows": "all",
+                    "model": "",
+                    "region": "",
+                    "quantity": "",
+                    "issued": "",
+                    "week_ending": "",
+                    "reason": message,
+                }
+            )
     if first_error is not None and not raws:
         raise first_error
     return raws, problems, pd.DataFrame(excluded, columns=list(EXCLUDED_COLUMNS))
@@ -103,41 +117,58 @@ def _with_unreadable(validated: _V, problems: list[Problem], excluded: pd.DataFr
     if not problems:
         return validated
     parts = [p for p in (excluded, validated.excluded) if not p.empty]
-    return replace(validated, problems=(*problems, *validated.problems),
-                   excluded=pd.concat(parts, ignore_index=True),
-                   files=(*(p.file for p in problems), *validated.files))
+    return replace(
+        validated,
+        problems=(*problems, *validated.problems),
+        excluded=pd.concat(parts, ignore_index=True),
+        files=(*(p.file for p in problems), *validated.files),
+    )
 
 
-def load_forecasts(spec: PathSpec, *, columns: Mapping[str, str] | None = None,
-                   signed: Collection[str] = (),
-                   label_root: Path | None = None) -> ValidatedForecasts:
+def load_forecasts(
+    spec: PathSpec,
+    *,
+    columns: Mapping[str, str] | None = None,
+    signed: Collection[str] = (),
+    label_root: Path | None = None,
+) -> ValidatedForecasts:
     """Read every forecast file named by ``spec`` (files, folders, globs) and validate them."""
     raws, problems, excluded = _read_all(spec, columns, "forecast", label_root)
     return _with_unreadable(validate_forecasts(raws, signed=signed), problems, excluded)
 
 
-def load_observations(spec: PathSpec, *, columns: Mapping[str, str] | None = None,
-                      signed: Collection[str] = (),
-                      as_of: pd.Timestamp | None = None,
-                      label_root: Path | None = None) -> ValidatedObservations:
+def load_observations(
+    spec: PathSpec,
+    *,
+    columns: Mapping[str, str] | None = None,
+    signed: Collection[str] = (),
+    as_of: pd.Timestamp | None = None,
+    label_root: Path | None = None,
+) -> ValidatedObservations:
     """Read and validate observation files (with optional ``reported`` vintages)."""
     raws, problems, excluded = _read_all(spec, columns, "observation", label_root)
-    return _with_unreadable(validate_observations(raws, signed=signed, as_of=as_of), problems,
-                            excluded)
+    return _with_unreadable(
+        validate_observations(raws, signed=signed, as_of=as_of), problems, excluded
+    )
 
 
-def load_inputs(forecasts: PathSpec, observations: PathSpec, *,
-                columns: Mapping[str, str] | None = None,
-                signed: Collection[str] = (),
-                as_of: pd.Timestamp | None = None,
-                label_root: Path | None = None) -> Inputs:
+def load_inputs(
+    forecasts: PathSpec,
+    observations: PathSpec,
+    *,
+    columns: Mapping[str, str] | None = None,
+    signed: Collection[str] = (),
+    as_of: pd.Timestamp | None = None,
+    label_root: Path | None = None,
+) -> Inputs:
     """Read and validate both inputs, and cross-check them.
 
     With ``label_root`` files are named relative to it (the configuration's folder), so a
     record names its inputs the same way wherever the folder is later unpacked.
     """
     f = load_forecasts(forecasts, columns=columns, signed=signed, label_root=label_root)
-    o = load_observations(observations, columns=columns, signed=signed, as_of=as_of,
-                          label_root=label_root)
+    o = load_observations(
+        observations, columns=columns, signed=signed, as_of=as_of, label_root=label_root
+    )
     problems = (*f.problems, *o.problems, *cross_check(f, o))
     return Inputs(f, o, problems)

@@ -68,16 +68,20 @@ def config_toml(meta: Mapping[str, Any]) -> str:
     for t in meta.get("thresholds", []):
         thresholds.setdefault(t["region"], []).append(t)
     for r in meta["regions"]:
-        lines += [f"[regions.{r['id']}]", f"name = {_q(r['name'])}",
-                  f"population = {int(r['population'])}"]
+        lines += [
+            f"[regions.{r['id']}]",
+            f"name = {_q(r['name'])}",
+            f"population = {int(r['population'])}",
+        ]
         for t in thresholds.get(r["id"], []):
-            lines.append(f"thresholds.{t['quantity']} = {{ value = {t['value']:g}, "
-                         f"label = {_q(t['label'])} }}")
+            lines.append(
+                f"thresholds.{t['quantity']} = {{ value = {t['value']:g}, "
+                f"label = {_q(t['label'])} }}"
+            )
         lines.append("")
     for q in meta["quantities"]:
         name = q["name"][:1].upper() + q["name"][1:].lower()
-        lines += [f"[quantities.{q['id']}]", f"name = {_q(name)}",
-                  f"unit = {_q(q['unit'])}", ""]
+        lines += [f"[quantities.{q['id']}]", f"name = {_q(name)}", f"unit = {_q(q['unit'])}", ""]
     lines += [
         "[email]",
         f"from = {_q('forecast-desk@health.example')}",

@@ -29,8 +29,10 @@ def ensure_out_dir(path: Path) -> Path:
     try:
         path.mkdir(parents=True, exist_ok=True)
     except OSError as exc:
-        raise InputError(f"{path}: cannot create the output folder ({exc.strerror}); "
-                         "fix: choose a folder you can write to") from None
+        raise InputError(
+            f"{path}: cannot create the output folder ({exc.strerror}); "
+            "fix: choose a folder you can write to"
+        ) from None
     if not path.is_dir():
         raise InputError(f"{path}: exists and is not a folder; fix: choose another --out")
     return path
@@ -85,8 +87,9 @@ def write_table(frame: pd.DataFrame, path: Path) -> Path:
         if name.endswith(".csv"):
             return write_csv(frame, path)
     except OSError as exc:
-        raise InputError(f"{path}: cannot be written ({exc.strerror}); "
-                         "fix: choose a folder you can write to") from None
+        raise InputError(
+            f"{path}: cannot be written ({exc.strerror}); fix: choose a folder you can write to"
+        ) from None
     raise InputError(f"{path}: unknown file type; fix: end the name in .csv or .parquet")
 
 

@@ -88,8 +88,9 @@ def _is_text(col: pd.Series | pd.DataFrame) -> bool:
     return isinstance(col, pd.Series) and col.dtype == _TEXT_DTYPE
 
 
-def _read_csv_inferred(path: Path, text_cols: Collection[str],
-                       options: Mapping[str, Any]) -> pd.DataFrame | None:
+def _read_csv_inferred(
+    path: Path, text_cols: Collection[str], options: Mapping[str, Any]
+) -> pd.DataFrame | None:
     """Read a CSV letting the parser find the text columns; None if any came back otherwise.
 
     Asking for text (``dtype=str``) costs more than letting the parser find it, so the caller
@@ -136,8 +137,9 @@ def read_raw_table(path: Path, *, columns: Mapping[str, str] | None = None) -> R
                 "skipinitialspace": True,
             }
             inferred = _read_csv_inferred(path, text_cols, options)
-            frame = (inferred if inferred is not None
-                     else pd.read_csv(path, dtype=text_cols, **options))
+            frame = (
+                inferred if inferred is not None else pd.read_csv(path, dtype=text_cols, **options)
+            )
             first_row = 2
         else:
             raise InputError(
@@ -148,7 +150,9 @@ def read_raw_table(path: Path, *, columns: Mapping[str, str] | None = None) -> R
     except InputError:
         raise
     except pd.errors.EmptyDataError:
-        raise InputError(f"{label}: the file is empty; fix: export the table with its header row") from None
+        raise InputError(
+            f"{label}: the file is empty; fix: export the table with its header row"
+        ) from None
     except (pd.errors.ParserError, UnicodeDecodeError, ValueError, OSError) as exc:
         first = str(exc).strip().splitlines()[0] if str(exc).strip() else type(exc).__name__
         raise InputError(

@@ -340,15 +340,25 @@ def _fan_handles(
                 else "observed, provisional\n(may be revised)",
             )
         )
-    if provisional and any(any(v is not None for v in (h.get("nowcast") or []))
-                           for h in (facts.history or {}).values()):
+    if provisional and any(
+        any(v is not None for v in (h.get("nowcast") or [])) for h in (facts.history or {}).values()
+    ):
         handles.append(
-            Line2D([], [], color=PALETTE["observed"], marker="D", ms=3.6, lw=1.0, alpha=0.7,
-                   label="expected once late reports\nare in (90% range)")
+            Line2D(
+                [],
+                [],
+                color=PALETTE["observed"],
+                marker="D",
+                ms=3.6,
+                lw=1.0,
+                alpha=0.7,
+                label="expected once late reports\nare in (90% range)",
+            )
         )
     handles += [
-        Line2D([], [], color=c, marker="o", ms=3.5, lw=1.8,
-               label=f"{_headline_label(facts)}, median"),
+        Line2D(
+            [], [], color=c, marker="o", ms=3.5, lw=1.8, label=f"{_headline_label(facts)}, median"
+        ),
         Patch(
             facecolor=mcolors.to_rgba(c, _BAND_ALPHA[50]), lw=0, label="50% range (1 in 2 chance)"
         ),
@@ -498,11 +508,28 @@ def _draw_fan(
             nv = np.array([now[k][0] for k in has_now], dtype=float)
             nlo = np.array([now[k][1] for k in has_now], dtype=float)
             nhi = np.array([now[k][2] for k in has_now], dtype=float)
-            ax.vlines(nx, nlo, nhi, color=PALETTE["observed"], lw=1.0, alpha=0.7, zorder=5,
-                      gid="nowcast-range")
-            ax.plot(nx, nv, lw=0, marker="D", ms=3.6, color=PALETTE["observed"], alpha=0.7,
-                    zorder=6, gid="nowcast",
-                    label="expected once late reports are in (with its 90% range)")
+            ax.vlines(
+                nx,
+                nlo,
+                nhi,
+                color=PALETTE["observed"],
+                lw=1.0,
+                alpha=0.7,
+                zorder=5,
+                gid="nowcast-range",
+            )
+            ax.plot(
+                nx,
+                nv,
+                lw=0,
+                marker="D",
+                ms=3.6,
+                color=PALETTE["observed"],
+                alpha=0.7,
+                zorder=6,
+                gid="nowcast",
+                label="expected once late reports are in (with its 90% range)",
+            )
             tops.append(float(np.nanmax(nhi)))
         tops.append(float(np.nanmax(hv)))
         x_lo = hw[0]

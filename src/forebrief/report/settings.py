@@ -113,8 +113,9 @@ class BriefingConfig:
 
     def quantity_info(self, quantity: str) -> QuantityInfo:
         name = quantity.replace("_", " ").replace("-", " ")
-        return self.quantities.get(quantity) or QuantityInfo(quantity, name[:1].upper() +
-                                                              name[1:], name)
+        return self.quantities.get(quantity) or QuantityInfo(
+            quantity, name[:1].upper() + name[1:], name
+        )
 
     def threshold(self, region: str, quantity: str) -> Threshold | None:
         for t in self.thresholds:

@@ -126,14 +126,18 @@ def backtest(
     if settings.settle_weeks > 0:
         # only targets settled on the rating date are scored (default: the day after the
         # latest observed week, i.e. the next issue date)
-        day = (pd.Timestamp(rating_date) if rating_date is not None
-               else pd.Timestamp(latest["week_ending"].max()) + pd.Timedelta(days=2))
+        day = (
+            pd.Timestamp(rating_date)
+            if rating_date is not None
+            else pd.Timestamp(latest["week_ending"].max()) + pd.Timedelta(days=2)
+        )
         latest = settled_on(latest, day, settings.settle_weeks)
         if latest.empty:
             raise ConfigError(
                 f"no observed week is settled ({settings.settle_weeks} weeks old) on "
                 f"{day:%Y-%m-%d}: nothing can be back-tested; fix: use --settle-weeks 0 or "
-                "a later date")
+                "a later date"
+            )
     as_of = pd.Timestamp(latest["week_ending"].max())
     window = max(1, math.ceil((as_of - start).days / 7) + 1)
     scored = score_forecasts(

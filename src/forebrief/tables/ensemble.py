@@ -899,8 +899,10 @@ def with_baseline(
         members = forecasts.loc[forecasts["model"] != name, ["issued", "level"]]
         union = members.assign(level=np.round(members["level"].to_numpy(dtype=float), 9))
         union = union.drop_duplicates().sort_values(["issued", "level"], kind="stable")
-        by_date = {pd.Timestamp(d): tuple(float(v) for v in part)
-                   for d, part in union.groupby("issued", sort=False)["level"]}
+        by_date = {
+            pd.Timestamp(d): tuple(float(v) for v in part)
+            for d, part in union.groupby("issued", sort=False)["level"]
+        }
     parts = [forecasts]
     for d in sorted(set(issue_dates)):
         known = known_on(observations, pd.Timestamp(d))
@@ -911,8 +913,11 @@ def with_baseline(
             known[["region", "quantity", "week_ending", "value"]],
             issued=pd.Timestamp(d),
             horizons=horizons,
-            levels=(tuple(levels) if levels is not None
-                    else by_date.get(pd.Timestamp(d), STANDARD_LEVELS)),
+            levels=(
+                tuple(levels)
+                if levels is not None
+                else by_date.get(pd.Timestamp(d), STANDARD_LEVELS)
+            ),
             name=name,
             nonnegative=floors,
         )

@@ -33,14 +33,18 @@ def observations_as_of(
         mask &= obs["reported"].isna() | (obs["reported"] <= as_of)
     known = obs.loc[mask]
     if has_reported:
-        known = known.sort_values(["region", "quantity", "week_ending", "reported"],
-                                  kind="stable", na_position="first")
+        known = known.sort_values(
+            ["region", "quantity", "week_ending", "reported"], kind="stable", na_position="first"
+        )
     known = known.drop_duplicates(["region", "quantity", "week_ending"], keep="last")
     cols = ["region", "quantity", "week_ending", "value", "reported"]
     if "reported" not in known.columns:
         known = known.assign(reported=pd.NaT)
-    return known.loc[:, cols].sort_values(["region", "quantity", "week_ending"],
-                                         kind="stable").reset_index(drop=True)
+    return (
+        known.loc[:, cols]
+        .sort_values(["region", "quantity", "week_ending"], kind="stable")
+        .reset_index(drop=True)
+    )
 
 
 def revisions_between(
@@ -55,5 +59,6 @@ def revisions_between(
     both = then.merge(now, on=["region", "quantity", "week_ending"], suffixes=("_then", "_now"))
     changed = both.loc[both["value_then"] != both["value_now"]].copy()
     changed["change"] = changed["value_now"] - changed["value_then"]
-    return changed.loc[:, ["region", "quantity", "week_ending", "value_then", "value_now",
-                           "change"]].reset_index(drop=True)
+    return changed.loc[
+        :, ["region", "quantity", "week_ending", "value_then", "value_now", "change"]
+    ].reset_index(drop=True)

@@ -210,7 +210,9 @@ def build_window(
         validate="many_to_one",
     )
     has_obs = merged["observed"].notna().to_numpy()
-    return WindowTable(merged.loc[has_obs].reset_index(drop=True), levels, values[has_obs]), n_superseded
+    return WindowTable(
+        merged.loc[has_obs].reset_index(drop=True), levels, values[has_obs]
+    ), n_superseded
 
 
 def transform_scale(x: np.ndarray, how: str, what: str) -> np.ndarray:
@@ -303,14 +305,14 @@ class _CommonLevels:
     O(rows of p x common levels).
     """
 
-    def __init__(
-        self, wide: WindowTable, scale: str, order: np.ndarray, wis: np.ndarray
-    ) -> None:
+    def __init__(self, wide: WindowTable, scale: str, order: np.ndarray, wis: np.ndarray) -> None:
         values = wide.values[order]
         self.levels = wide.levels
         self.y = transform_scale(
-            wide.heads["observed"].to_numpy(dtype=float)[order], scale,
-            "the weighted interval score")
+            wide.heads["observed"].to_numpy(dtype=float)[order],
+            scale,
+            "the weighted interval score",
+        )
         self.q = transform_scale(values, scale, "the weighted interval score")
         self.wis = wis
         present = ~np.isnan(values)
@@ -320,8 +322,9 @@ class _CommonLevels:
             self.patterns = np.zeros((0, self.levels.size), dtype=bool)
             self.pattern = np.zeros(0, dtype=np.int64)
         mid = level_index(self.levels, 0.5)
-        self.median = (self.patterns[:, mid] if mid is not None
-                       else np.zeros(len(self.patterns), dtype=bool))
+        self.median = (
+            self.patterns[:, mid] if mid is not None else np.zeros(len(self.patterns), dtype=bool)
+        )
         order_p = np.argsort(self.pattern, kind="stable")
         counts = np.bincount(self.pattern, minlength=len(self.patterns))
         starts = np.cumsum(counts) - counts
@@ -396,8 +399,9 @@ def classical_arrays(wide: WindowTable, settings: ScoreSettings) -> ClassicalArr
         lower[idx], upper[idx] = intrinsic_range(
             lo[item[idx]], hi[item[idx]], overshoot=settings.overshoot
         )
-    return ClassicalArrays(q_t, qcm, y_t, y_raw, lower, upper, use, item,
-                           int(degenerate_item.sum()))
+    return ClassicalArrays(
+        q_t, qcm, y_t, y_raw, lower, upper, use, item, int(degenerate_item.sum())
+    )
 
 
 def _classical(
@@ -413,7 +417,10 @@ def _classical(
     idx = np.flatnonzero(ca.use)
     if idx.size:
         info[idx] = information_score(
-            ca.quantiles[idx], ca.lower[idx], ca.upper[idx], cm_probabilities(settings.levels),
+            ca.quantiles[idx],
+            ca.lower[idx],
+            ca.upper[idx],
+            cm_probabilities(settings.levels),
             floor=settings.floor,
         )
         bins[idx] = bin_index(ca.raw_quantiles[idx], ca.raw_observed[idx])
@@ -476,8 +483,9 @@ def _aggregate(
     out["weight"] = np.where(member, w.weight, np.nan)
     out["passes_cutoff"] = w.passed
     out["equal_weights"] = fallback
-    out["relative_wis"] = _relative(items, keys, weight_keys, out, settings.baseline,
-                                    out_rows=g_codes, common=common)
+    out["relative_wis"] = _relative(
+        items, keys, weight_keys, out, settings.baseline, out_rows=g_codes, common=common
+    )
     for j in range(n_bins):
         out[f"bin_{j}"] = cm_counts[:, j]
     cols = [*keys[:-1], "model"]
@@ -521,9 +529,7 @@ def _relative(
     idx = np.flatnonzero(scored)
     sub = items.loc[scored]
     gcode, _ = group_codes([sub[k] for k in group_keys])
-    item_code, _ = group_codes(
-        [sub[k] for k in ("region", "quantity", "week_ending", "horizon")]
-    )
+    item_code, _ = group_codes([sub[k] for k in ("region", "quantity", "week_ending", "horizon")])
     model_text = sub["model"].to_numpy().astype(str)
     wis = sub["wis"].to_numpy(dtype=float)
     pattern = common.pattern[idx]
@@ -536,8 +542,7 @@ def _relative(
         if baseline not in models:
             continue
         # items numbered by first appearance within the group
-        uniq, first_at, icode = np.unique(item_code[sel], return_index=True,
-                                          return_inverse=True)
+        uniq, first_at, icode = np.unique(item_code[sel], return_index=True, return_inverse=True)
         rank = np.empty(uniq.size, dtype=np.int64)
         rank[np.argsort(first_at, kind="stable")] = np.arange(uniq.size)
         col = rank[icode]
@@ -598,8 +603,9 @@ def score_forecasts(
     items = items[list(BY_ITEM_COLUMNS)].sort_values(
         ["quantity", "horizon", "region", "week_ending", "model"], kind="stable"
     )
-    common = _CommonLevels(wide, settings.scale, items.index.to_numpy(),
-                           items["wis"].to_numpy(dtype=float))
+    common = _CommonLevels(
+        wide, settings.scale, items.index.to_numpy(), items["wis"].to_numpy(dtype=float)
+    )
     items = items.reset_index(drop=True)
     notes: list[str] = []
     if n_superseded:
@@ -635,7 +641,10 @@ def score_forecasts(
         )
     bins_sorted = items["bin"].to_numpy().copy()
     by_model = _aggregate(
-        items, ["quantity", "horizon", "model"], settings, ["quantity", "horizon"],
+        items,
+        ["quantity", "horizon", "model"],
+        settings,
+        ["quantity", "horizon"],
         common=common,
     )
     by_region = _aggregate(

@@ -186,8 +186,11 @@ class _Collector:
             else:
                 detail = [message] * where.size
             self.reasons.append((where, detail))
-        model = (self.frame["model"].iloc[where].astype(str) if "model" in self.frame.columns
-                 else pd.Series("", index=index))
+        model = (
+            self.frame["model"].iloc[where].astype(str)
+            if "model" in self.frame.columns
+            else pd.Series("", index=index)
+        )
         grouped = pd.DataFrame(
             {
                 "file": self.frame["_file"].to_numpy()[where],
@@ -221,8 +224,16 @@ class _Collector:
         return out
 
 
-def _file_problem(label: str, check: str, message: str, fix: str, *, severity: Severity = "error",
-                  column: str = "", values: tuple[str, ...] = ()) -> Problem:
+def _file_problem(
+    label: str,
+    check: str,
+    message: str,
+    fix: str,
+    *,
+    severity: Severity = "error",
+    column: str = "",
+    values: tuple[str, ...] = (),
+) -> Problem:
     return Problem(severity, check, label, (), "", column, values, message, fix)
 
 
@@ -274,9 +285,15 @@ def _no_rows_warning(raw: RawFile, kind: str) -> list[Problem]:
     """A file with a header and no data rows adds nothing; say so rather than pass silently."""
     if len(raw.frame):
         return []
-    return [_file_problem(raw.label, "no-rows", f"the {kind} file has a header but no data rows",
-                          "check the export; a file with nothing to add can be removed",
-                          severity="warning")]
+    return [
+        _file_problem(
+            raw.label,
+            "no-rows",
+            f"the {kind} file has a header but no data rows",
+            "check the export; a file with nothing to add can be removed",
+            severity="warning",
+        )
+    ]
 
 
 def _stack(files: Sequence[RawFile], columns: Sequence[str]) -> tuple[pd.DataFrame, list[str]]:
@@ -333,8 +350,10 @@ def _text_column(series: pd.Series) -> _TextColumn:
     row_codes = canon.astype(np.int64)[codes]
     distinct = np.asarray(distinct, dtype=object)
     values = pd.Series(distinct, dtype="str").array
-    if series.dtype == values.dtype and len(uniques) == len(distinct) and all(
-        isinstance(u, str) and u == t for u, t in zip(uniques, cleaned, strict=True)
+    if (
+        series.dtype == values.dtype
+        and len(uniques) == len(distinct)
+        and all(isinstance(u, str) and u == t for u, t in zip(uniques, cleaned, strict=True))
     ):
         # already clean text of the right type (the usual case): nothing to convert
         return _TextColumn(series, row_codes, distinct)
@@ -350,8 +369,9 @@ def _text(series: pd.Series) -> pd.Series:
 def _column_dates(col: _TextColumn) -> tuple[pd.Series, np.ndarray]:
     """Parse a text column's ISO dates once per distinct text (NaT where not a date); also
     return an integer code per row that is equal exactly when the parsed dates are equal."""
-    parsed = pd.to_datetime(pd.Series(col.distinct, dtype=object).astype(str),
-                            format="%Y-%m-%d", errors="coerce")
+    parsed = pd.to_datetime(
+        pd.Series(col.distinct, dtype=object).astype(str), format="%Y-%m-%d", errors="coerce"
+    )
     values = parsed.to_numpy()
     dates = pd.Series(values[col.codes], index=col.text.index, dtype="datetime64[ns]")
     date_codes, _ = pd.factorize(values, use_na_sentinel=False)
@@ -361,8 +381,9 @@ def _column_dates(col: _TextColumn) -> tuple[pd.Series, np.ndarray]:
 def _parse_dates(text: pd.Series) -> pd.Series:
     """Parse ISO dates (YYYY-MM-DD); NaT where the text is not one. Parses each distinct text once."""
     codes, uniques = pd.factorize(text, use_na_sentinel=False)
-    parsed = pd.to_datetime(pd.Series(uniques, dtype=object).astype(str), format="%Y-%m-%d",
-                            errors="coerce")
+    parsed = pd.to_datetime(
+        pd.Series(uniques, dtype=object).astype(str), format="%Y-%m-%d", errors="coerce"
+    )
     return pd.Series(parsed.to_numpy()[codes], index=text.index, dtype="datetime64[ns]")
 
 
@@ -402,8 +423,9 @@ def _parse_numbers(col: pd.Series) -> tuple[pd.Series, pd.Series]:
     return values, text
 
 
-def _number_checks(c: _Collector, column: str, values: pd.Series, shown: pd.Series, *,
-                   what: str, example: str) -> np.ndarray:
+def _number_checks(
+    c: _Collector, column: str, values: pd.Series, shown: pd.Series, *, what: str, example: str
+) -> np.ndarray:
     """Report text that is not a number, empty cells, NaN and infinity. Returns the good mask."""
     arr = values.to_numpy(dtype=float)
     nan = np.isnan(arr)
@@ -414,14 +436,31 @@ def _number_checks(c: _Collector, column: str, values: pd.Series, shown: pd.Seri
         empty[nan] = shown_str.isin(["", "nan", "<NA>", "None"]).to_numpy()
         text_nan[nan] = shown_str.str.lower().isin(["nan", "na", "n/a", "null", "none"]).to_numpy()
     not_number = nan & ~empty & ~text_nan
-    c.add(not_number, check="not-a-number", column=column, shown=shown,
-          message=f"{what} is not a number", fix=f"write {what} as a plain number such as {example}")
-    c.add((empty | text_nan) & np.isnan(arr), check="missing-number", column=column, shown=shown,
-          message=f"{what} is empty or NaN",
-          fix=f"fill in {what}, or remove the row if there is none")
+    c.add(
+        not_number,
+        check="not-a-number",
+        column=column,
+        shown=shown,
+        message=f"{what} is not a number",
+        fix=f"write {what} as a plain number such as {example}",
+    )
+    c.add(
+        (empty | text_nan) & np.isnan(arr),
+        check="missing-number",
+        column=column,
+        shown=shown,
+        message=f"{what} is empty or NaN",
+        fix=f"fill in {what}, or remove the row if there is none",
+    )
     inf = np.isinf(arr)
-    c.add(inf, check="infinite", column=column, shown=shown, message=f"{what} is infinite",
-          fix=f"write {what} as a finite number")
+    c.add(
+        inf,
+        check="infinite",
+        column=column,
+        shown=shown,
+        message=f"{what} is infinite",
+        fix=f"write {what} as a finite number",
+    )
     return np.isfinite(arr)
 
 
@@ -458,10 +497,18 @@ def validate_forecasts(
             if "model" in raw.frame.columns:
                 models = ", ".join(sorted({str(m) for m in raw.frame["model"].dropna()})[:5])
             file_excluded.append(
-                {"kind": "forecast", "file": raw.label, "rows": "all", "model": models,
-                 "region": "", "quantity": "", "issued": "", "week_ending": "",
-                 "reason": "file lacks required column(s): "
-                 + ", ".join(p.values[0] for p in col_problems if p.severity == "error")}
+                {
+                    "kind": "forecast",
+                    "file": raw.label,
+                    "rows": "all",
+                    "model": models,
+                    "region": "",
+                    "quantity": "",
+                    "issued": "",
+                    "week_ending": "",
+                    "reason": "file lacks required column(s): "
+                    + ", ".join(p.values[0] for p in col_problems if p.severity == "error"),
+                }
             )
         else:
             usable.append(raw)
@@ -473,46 +520,79 @@ def validate_forecasts(
         texts[col] = _text_column(frame[col])
         frame[col] = texts[col].text
 
-    for col, what in (("model", "the model name"), ("region", "the region"),
-                      ("quantity", "the quantity")):
-        c.add((frame[col] == "").to_numpy(), check="empty", column=col,
-              message=f"{what} is empty", fix=f"fill in {what} on every row")
+    for col, what in (
+        ("model", "the model name"),
+        ("region", "the region"),
+        ("quantity", "the quantity"),
+    ):
+        c.add(
+            (frame[col] == "").to_numpy(),
+            check="empty",
+            column=col,
+            message=f"{what} is empty",
+            fix=f"fill in {what} on every row",
+        )
 
     issued, issued_codes = _column_dates(texts["issued"])
     week_ending, week_codes = _column_dates(texts["week_ending"])
     for col, parsed in (("issued", issued), ("week_ending", week_ending)):
-        c.add(parsed.isna().to_numpy() & (frame[col] != "").to_numpy(), check="bad-date",
-              column=col, message=f"{col} is not an ISO date",
-              fix=f"write {col} as YYYY-MM-DD, for example 2026-11-28")
-        c.add((frame[col] == "").to_numpy(), check="empty", column=col,
-              message=f"{col} is empty", fix=f"fill in {col} as YYYY-MM-DD")
+        c.add(
+            parsed.isna().to_numpy() & (frame[col] != "").to_numpy(),
+            check="bad-date",
+            column=col,
+            message=f"{col} is not an ISO date",
+            fix=f"write {col} as YYYY-MM-DD, for example 2026-11-28",
+        )
+        c.add(
+            (frame[col] == "").to_numpy(),
+            check="empty",
+            column=col,
+            message=f"{col} is empty",
+            fix=f"fill in {col} as YYYY-MM-DD",
+        )
 
     level, level_text = _parse_numbers(frame["level"])
     value, value_text = _parse_numbers(frame["value"])
     level_ok = _number_checks(c, "level", level, level_text, what="the level", example="0.25")
-    value_ok = _number_checks(c, "value", value, value_text, what="the quantile value",
-                              example="12")
+    value_ok = _number_checks(
+        c, "value", value, value_text, what="the quantile value", example="12"
+    )
     lv = level.to_numpy()
     vv = value.to_numpy()
     out_of_range = level_ok & ((lv <= 0) | (lv >= 1))
-    c.add(out_of_range, check="level-range", column="level", shown=level_text,
-          message="the level must lie strictly between 0 and 1",
-          fix="write the probability level as a fraction, e.g. 0.975 for the 97.5% quantile")
+    c.add(
+        out_of_range,
+        check="level-range",
+        column="level",
+        shown=level_text,
+        message="the level must lie strictly between 0 and 1",
+        fix="write the probability level as a fraction, e.g. 0.975 for the 97.5% quantile",
+    )
     negative = value_ok & (vv < 0) & _nonneg_mask(frame["quantity"], signed)
-    c.add(negative, check="negative", column="value", shown=value_text,
-          message="a count cannot be negative",
-          fix="floor the quantile at 0, or configure this quantity as one that may be negative")
+    c.add(
+        negative,
+        check="negative",
+        column="value",
+        shown=value_text,
+        message="a count cannot be negative",
+        fix="floor the quantile at 0, or configure this quantity as one that may be negative",
+    )
     dates_ok = issued.notna().to_numpy() & week_ending.notna().to_numpy()
     days = (week_ending - issued).dt.days.to_numpy(dtype=float)
     not_after = dates_ok & (days <= 0)
-    c.add(not_after, check="target-not-after-issue", column="week_ending",
-          shown=lambda m: (frame["week_ending"][m] + " (issued " + frame["issued"][m] + ")"),
-          message="the target week must end after the issue date (horizon >= 1)",
-          fix="check the two dates; a forecast of a week already over is not a forecast")
+    c.add(
+        not_after,
+        check="target-not-after-issue",
+        column="week_ending",
+        shown=lambda m: frame["week_ending"][m] + " (issued " + frame["issued"][m] + ")",
+        message="the target week must end after the issue date (horizon >= 1)",
+        fix="check the two dates; a forecast of a week already over is not a forecast",
+    )
 
     # forecast identity from the text as written, so that bad dates group among themselves
-    fc, _ = group_codes([texts[k].codes for k in ("model", "region", "quantity", "issued",
-                                                   "week_ending")])
+    fc, _ = group_codes(
+        [texts[k].codes for k in ("model", "region", "quantity", "issued", "week_ending")]
+    )
     # duplicates and crossing, on rows whose level is a number
     rlevel = np.where(level_ok, np.round(lv, _LEVEL_DECIMALS), np.nan)
     # rows sorted by forecast, then level (NaN last), then file order: one stable sort of a
@@ -541,16 +621,28 @@ def validate_forecasts(
     dup_conflict[order] = conflicting
     dup_identical = np.zeros(len(frame), dtype=bool)
     dup_identical[order] = identical_extra
+
     def key_text(m: np.ndarray) -> pd.Series:
         return "level " + level_text[m].astype(str) + ", value " + value_text[m].astype(str)
 
-    c.add(dup_conflict, check="duplicate", column="row", shown=key_text,
-          message="duplicate: the same model, region, quantity, issued, week_ending and level "
-          "appear more than once with different values",
-          fix="keep one row per level; forebrief will not guess which value is right")
-    c.add(dup_identical, check="duplicate", column="row", shown=key_text, severity="warning",
-          message="duplicate: an identical copy of an earlier row; the copy is ignored",
-          fix="remove the repeated row")
+    c.add(
+        dup_conflict,
+        check="duplicate",
+        column="row",
+        shown=key_text,
+        message="duplicate: the same model, region, quantity, issued, week_ending and level "
+        "appear more than once with different values",
+        fix="keep one row per level; forebrief will not guess which value is right",
+    )
+    c.add(
+        dup_identical,
+        check="duplicate",
+        column="row",
+        shown=key_text,
+        severity="warning",
+        message="duplicate: an identical copy of an earlier row; the copy is ignored",
+        fix="remove the repeated row",
+    )
     # crossing: consecutive distinct levels within a forecast with decreasing values
     nxt_same_fc = np.r_[fc_s[1:] == fc_s[:-1], False]
     first_of_run = run_start
@@ -560,8 +652,14 @@ def validate_forecasts(
         a, b = idx_first[:-1], idx_first[1:]
         same = fc_s[a] == fc_s[b]
         in_range = (lv_s > 0) & (lv_s < 1)  # False for NaN: bad levels are reported already
-        dec = (same & (vv_s[b] < vv_s[a]) & np.isfinite(vv_s[a]) & np.isfinite(vv_s[b])
-               & in_range[a] & in_range[b])
+        dec = (
+            same
+            & (vv_s[b] < vv_s[a])
+            & np.isfinite(vv_s[a])
+            & np.isfinite(vv_s[b])
+            & in_range[a]
+            & in_range[b]
+        )
         cross_rows = np.zeros(len(frame), dtype=bool)
         cross_rows[order[a[dec]]] = True
         cross_rows[order[b[dec]]] = True
@@ -572,10 +670,14 @@ def validate_forecasts(
             )
             if shown_cross[order[aa]] == "":
                 shown_cross[order[aa]] = shown_cross[order[bb]]
-        c.add(cross_rows, check="crossing", column="quantiles",
-              shown=pd.Series(shown_cross, index=frame.index),
-              message="quantiles decrease as the level rises (crossing quantiles)",
-              fix="sort the values so that a higher level never has a lower value")
+        c.add(
+            cross_rows,
+            check="crossing",
+            column="quantiles",
+            shown=pd.Series(shown_cross, index=frame.index),
+            message="quantiles decrease as the level rises (crossing quantiles)",
+            fix="sort the values so that a higher level never has a lower value",
+        )
     del nxt_same_fc
 
     # quarantine every forecast with an error row
@@ -604,13 +706,19 @@ def validate_forecasts(
     clean_row = frame["_row"].to_numpy()[keep]
     problems.extend(c.problems)
     # forecast identity of the clean rows from codes: text for the names, parsed dates
-    clean_fc = group_codes([texts["model"].codes[keep], texts["region"].codes[keep],
-                            texts["quantity"].codes[keep], issued_codes[keep],
-                            week_codes[keep]])
-    problems.extend(_level_warnings(clean, clean_file, clean_row, labels, cm_levels,
-                                    codes=clean_fc))
-    problems.extend(_superseded_warnings(clean, clean_file, clean_row, labels,
-                                         fc=clean_fc[0]))
+    clean_fc = group_codes(
+        [
+            texts["model"].codes[keep],
+            texts["region"].codes[keep],
+            texts["quantity"].codes[keep],
+            issued_codes[keep],
+            week_codes[keep],
+        ]
+    )
+    problems.extend(
+        _level_warnings(clean, clean_file, clean_row, labels, cm_levels, codes=clean_fc)
+    )
+    problems.extend(_superseded_warnings(clean, clean_file, clean_row, labels, fc=clean_fc[0]))
     return ValidatedForecasts(
         table=clean.reset_index(drop=True),
         excluded=excluded.reset_index(drop=True),
@@ -619,13 +727,19 @@ def validate_forecasts(
     )
 
 
-def _excluded_forecasts(frame: pd.DataFrame, fc: np.ndarray, quarantined: np.ndarray,
-                        reasons: np.ndarray, labels: Sequence[str]) -> pd.DataFrame:
+def _excluded_forecasts(
+    frame: pd.DataFrame,
+    fc: np.ndarray,
+    quarantined: np.ndarray,
+    reasons: np.ndarray,
+    labels: Sequence[str],
+) -> pd.DataFrame:
     """One row per quarantined forecast, with its rows and every reason found."""
     if not quarantined.any():
         return pd.DataFrame(columns=list(EXCLUDED_COLUMNS))
-    sub = frame.loc[quarantined, ["model", "region", "quantity", "issued", "week_ending",
-                                  "_file", "_row"]].copy()
+    sub = frame.loc[
+        quarantined, ["model", "region", "quantity", "issued", "week_ending", "_file", "_row"]
+    ].copy()
     sub["_fc"] = fc[quarantined]
     sub["_reason"] = reasons[quarantined]
     rows = []
@@ -646,21 +760,29 @@ def _excluded_forecasts(frame: pd.DataFrame, fc: np.ndarray, quarantined: np.nda
             }
         )
     out = pd.DataFrame(rows, columns=list(EXCLUDED_COLUMNS))
-    return out.sort_values(["file", "model", "region", "quantity", "issued", "week_ending"],
-                           kind="stable")
+    return out.sort_values(
+        ["file", "model", "region", "quantity", "issued", "week_ending"], kind="stable"
+    )
 
 
-def _level_warnings(clean: pd.DataFrame, files: np.ndarray, rows: np.ndarray,
-                    labels: Sequence[str], cm_levels: Sequence[float], *,
-                    codes: tuple[np.ndarray, int] | None = None) -> list[Problem]:
+def _level_warnings(
+    clean: pd.DataFrame,
+    files: np.ndarray,
+    rows: np.ndarray,
+    labels: Sequence[str],
+    cm_levels: Sequence[float],
+    *,
+    codes: tuple[np.ndarray, int] | None = None,
+) -> list[Problem]:
     """Warn about forecasts that lack the median or a Classical Model level.
 
     ``codes``: the forecast codes of ``clean`` and their number, if already known."""
     if clean.empty:
         return []
     if codes is None:
-        codes = group_codes([clean[k] for k in ("model", "region", "quantity", "issued",
-                                                "week_ending")])
+        codes = group_codes(
+            [clean[k] for k in ("model", "region", "quantity", "issued", "week_ending")]
+        )
     fc, n_fc = codes
     need = np.asarray(sorted(set(cm_levels) | {0.5}), dtype=float)
     lv = clean["level"].to_numpy()
@@ -673,16 +795,26 @@ def _level_warnings(clean: pd.DataFrame, files: np.ndarray, rows: np.ndarray,
         return []
     problems = []
     bad_rows = np.asarray(lacking)[fc]
-    df = pd.DataFrame({"file": files[bad_rows], "model": clean["model"].to_numpy()[bad_rows],
-                       "row": rows[bad_rows], "fc": fc[bad_rows]})
+    df = pd.DataFrame(
+        {
+            "file": files[bad_rows],
+            "model": clean["model"].to_numpy()[bad_rows],
+            "row": rows[bad_rows],
+            "fc": fc[bad_rows],
+        }
+    )
     for (file_code, model), part in df.groupby(["file", "model"], sort=True):
         miss = ~has[np.unique(part["fc"].to_numpy())]
         missing_levels = need[miss.any(axis=0)]
         n = len(np.unique(part["fc"]))
         problems.append(
             Problem(
-                "warning", "missing-levels", labels[int(file_code)],
-                tuple(int(r) for r in part["row"]), str(model), "levels missing",
+                "warning",
+                "missing-levels",
+                labels[int(file_code)],
+                tuple(int(r) for r in part["row"]),
+                str(model),
+                "levels missing",
                 tuple(f"{x:g}" for x in missing_levels),
                 f"{n} forecast(s) lack the median or a Classical Model level; they are "
                 "interval-scored but not Classical-Model-scored",
@@ -692,9 +824,14 @@ def _level_warnings(clean: pd.DataFrame, files: np.ndarray, rows: np.ndarray,
     return problems
 
 
-def _superseded_warnings(clean: pd.DataFrame, files: np.ndarray, rows: np.ndarray,
-                         labels: Sequence[str], *,
-                         fc: np.ndarray | None = None) -> list[Problem]:
+def _superseded_warnings(
+    clean: pd.DataFrame,
+    files: np.ndarray,
+    rows: np.ndarray,
+    labels: Sequence[str],
+    *,
+    fc: np.ndarray | None = None,
+) -> list[Problem]:
     """Warn when a model has several forecasts for one target and horizon (the latest is used).
 
     ``fc``: the forecast codes of ``clean`` (first-appearance order), if already known."""
@@ -708,8 +845,9 @@ def _superseded_warnings(clean: pd.DataFrame, files: np.ndarray, rows: np.ndarra
         seen = np.maximum.accumulate(fc) if fc.size else fc
         first = np.ones(fc.size, dtype=bool)
         first[1:] = fc[1:] > seen[:-1]
-        heads = clean.loc[first, ["model", "region", "quantity", "issued", "week_ending",
-                                  "horizon"]]
+        heads = clean.loc[
+            first, ["model", "region", "quantity", "issued", "week_ending", "horizon"]
+        ]
     dup = heads.duplicated(["model", "region", "quantity", "week_ending", "horizon"], keep="last")
     if not dup.any():
         return []
@@ -719,8 +857,12 @@ def _superseded_warnings(clean: pd.DataFrame, files: np.ndarray, rows: np.ndarra
         pos = part.index.to_numpy()
         problems.append(
             Problem(
-                "warning", "superseded", labels[int(files[pos[0]])],
-                tuple(int(r) for r in rows[pos]), str(model), "issued",
+                "warning",
+                "superseded",
+                labels[int(files[pos[0]])],
+                tuple(int(r) for r in rows[pos]),
+                str(model),
+                "issued",
                 tuple(dict.fromkeys(d.strftime("%Y-%m-%d") for d in part["issued"])),
                 "a later forecast of the same target at the same horizon exists; "
                 "only the latest issued one is scored",
@@ -750,14 +892,23 @@ def validate_observations(
     usable: list[RawFile] = []
     file_excluded: list[dict[str, str]] = []
     for raw in files:
-        col_problems = _check_columns(raw, OBSERVATION_COLUMNS, OPTIONAL_OBSERVATION_COLUMNS,
-                                      "observation")
+        col_problems = _check_columns(
+            raw, OBSERVATION_COLUMNS, OPTIONAL_OBSERVATION_COLUMNS, "observation"
+        )
         problems.extend(col_problems)
         if any(p.severity == "error" for p in col_problems):
             file_excluded.append(
-                {"kind": "observation", "file": raw.label, "rows": "all", "model": "",
-                 "region": "", "quantity": "", "issued": "", "week_ending": "",
-                 "reason": "file lacks required column(s)"}
+                {
+                    "kind": "observation",
+                    "file": raw.label,
+                    "rows": "all",
+                    "model": "",
+                    "region": "",
+                    "quantity": "",
+                    "issued": "",
+                    "week_ending": "",
+                    "reason": "file lacks required column(s)",
+                }
             )
         else:
             usable.append(raw)
@@ -771,37 +922,68 @@ def validate_observations(
     for col in ("region", "quantity", "week_ending") + (("reported",) if has_vintages else ()):
         frame[col] = _text(frame[col])
     for col in ("region", "quantity"):
-        c.add((frame[col] == "").to_numpy(), check="empty", column=col,
-              message=f"the {col} is empty", fix=f"fill in the {col} on every row")
+        c.add(
+            (frame[col] == "").to_numpy(),
+            check="empty",
+            column=col,
+            message=f"the {col} is empty",
+            fix=f"fill in the {col} on every row",
+        )
     week_ending = _parse_dates(frame["week_ending"])
-    c.add(week_ending.isna().to_numpy() & (frame["week_ending"] != "").to_numpy(),
-          check="bad-date", column="week_ending", message="week_ending is not an ISO date",
-          fix="write week_ending as YYYY-MM-DD, for example 2026-11-28")
-    c.add((frame["week_ending"] == "").to_numpy(), check="empty", column="week_ending",
-          message="week_ending is empty", fix="fill in week_ending as YYYY-MM-DD")
+    c.add(
+        week_ending.isna().to_numpy() & (frame["week_ending"] != "").to_numpy(),
+        check="bad-date",
+        column="week_ending",
+        message="week_ending is not an ISO date",
+        fix="write week_ending as YYYY-MM-DD, for example 2026-11-28",
+    )
+    c.add(
+        (frame["week_ending"] == "").to_numpy(),
+        check="empty",
+        column="week_ending",
+        message="week_ending is empty",
+        fix="fill in week_ending as YYYY-MM-DD",
+    )
     if has_vintages:
         reported = _parse_dates(frame["reported"])
-        c.add(reported.isna().to_numpy() & (frame["reported"] != "").to_numpy(),
-              check="bad-date", column="reported", message="reported is not an ISO date",
-              fix="write reported as YYYY-MM-DD, the date the value was published")
-        c.add((frame["reported"] == "").to_numpy(), check="empty", column="reported",
-              message="reported is empty in a file with vintages",
-              fix="give the date each value was published")
+        c.add(
+            reported.isna().to_numpy() & (frame["reported"] != "").to_numpy(),
+            check="bad-date",
+            column="reported",
+            message="reported is not an ISO date",
+            fix="write reported as YYYY-MM-DD, the date the value was published",
+        )
+        c.add(
+            (frame["reported"] == "").to_numpy(),
+            check="empty",
+            column="reported",
+            message="reported is empty in a file with vintages",
+            fix="give the date each value was published",
+        )
         early = (reported < week_ending).to_numpy()
-        c.add(early, check="reported-before-week", column="reported",
-              shown=lambda m: frame["reported"][m] + " (week_ending " + frame["week_ending"][m] + ")",
-              message="the value is dated as published before its week ended",
-              fix="check the reported and week_ending dates")
+        c.add(
+            early,
+            check="reported-before-week",
+            column="reported",
+            shown=lambda m: frame["reported"][m] + " (week_ending " + frame["week_ending"][m] + ")",
+            message="the value is dated as published before its week ended",
+            fix="check the reported and week_ending dates",
+        )
     else:
         reported = pd.Series(pd.NaT, index=frame.index, dtype="datetime64[ns]")
     value, value_text = _parse_numbers(frame["value"])
-    value_ok = _number_checks(c, "value", value, value_text, what="the observed value",
-                              example="57")
+    value_ok = _number_checks(
+        c, "value", value, value_text, what="the observed value", example="57"
+    )
     vv = value.to_numpy()
-    c.add(value_ok & (vv < 0) & _nonneg_mask(frame["quantity"], signed),
-          check="negative", column="value", shown=value_text,
-          message="a count cannot be negative",
-          fix="correct the value, or configure this quantity as one that may be negative")
+    c.add(
+        value_ok & (vv < 0) & _nonneg_mask(frame["quantity"], signed),
+        check="negative",
+        column="value",
+        shown=value_text,
+        message="a count cannot be negative",
+        fix="correct the value, or configure this quantity as one that may be negative",
+    )
 
     # duplicates of one (region, quantity, week_ending[, reported])
     key_cols = [frame["region"], frame["quantity"], frame["week_ending"]]
@@ -817,27 +999,48 @@ def validate_observations(
     conflict = dup & (vmin[key] != vmax[key])
     first = ~pd.Series(key).duplicated().to_numpy()
     identical_extra = dup & ~conflict & ~first
-    c.add(conflict, check="duplicate", column="value", shown=value_text,
-          message="duplicate: the same region, quantity and week_ending"
-          + (" and reported date" if has_vintages else "")
-          + " appear more than once with different values",
-          fix=("give each revision its own reported date" if has_vintages
-               else "keep one value per week, or add a 'reported' column to keep revisions"))
-    c.add(identical_extra, check="duplicate", column="value", shown=value_text,
-          severity="warning", message="duplicate: an identical copy of an earlier row; ignored",
-          fix="remove the repeated row")
+    c.add(
+        conflict,
+        check="duplicate",
+        column="value",
+        shown=value_text,
+        message="duplicate: the same region, quantity and week_ending"
+        + (" and reported date" if has_vintages else "")
+        + " appear more than once with different values",
+        fix=(
+            "give each revision its own reported date"
+            if has_vintages
+            else "keep one value per week, or add a 'reported' column to keep revisions"
+        ),
+    )
+    c.add(
+        identical_extra,
+        check="duplicate",
+        column="value",
+        shown=value_text,
+        severity="warning",
+        message="duplicate: an identical copy of an earlier row; ignored",
+        fix="remove the repeated row",
+    )
     if as_of is not None:
         future = (week_ending > as_of).to_numpy() | (reported > as_of).to_numpy()
         # show the reported date too: a past week can be in the future through its vintage
         shown_future: pd.Series | Callable[[np.ndarray], Any] = frame["week_ending"]
         if has_vintages:
+
             def shown_future(m: np.ndarray) -> pd.Series:
                 return frame["week_ending"][m] + " (reported " + frame["reported"][m] + ")"
-        c.add(future & ~c.error_rows, check="future", column="week_ending",
-              shown=shown_future, severity="warning",
-              message=f"observation dated after the as-of date {as_of:%Y-%m-%d}; "
-              "a run as of that date ignores it",
-              fix="nothing, if this is later data; otherwise check the dates")
+
+        c.add(
+            future & ~c.error_rows,
+            check="future",
+            column="week_ending",
+            shown=shown_future,
+            severity="warning",
+            message=f"observation dated after the as-of date {as_of:%Y-%m-%d}; "
+            "a run as of that date ignores it",
+            fix="nothing, if this is later data; otherwise check the dates",
+        )
     bad = c.error_rows
     reasons = c.reason_per_row()
     ex = frame.loc[bad, ["region", "quantity", "week_ending", "_file", "_row"]].copy()
@@ -869,8 +1072,9 @@ def validate_observations(
     )
     problems.extend(c.problems)
     return ValidatedObservations(
-        table=clean.sort_values(["region", "quantity", "week_ending", "reported"],
-                                kind="stable").reset_index(drop=True),
+        table=clean.sort_values(
+            ["region", "quantity", "week_ending", "reported"], kind="stable"
+        ).reset_index(drop=True),
         excluded=excluded.reset_index(drop=True),
         problems=tuple(problems),
         has_vintages=has_vintages,
@@ -878,7 +1082,9 @@ def validate_observations(
     )
 
 
-def cross_check(forecasts: ValidatedForecasts, observations: ValidatedObservations) -> list[Problem]:
+def cross_check(
+    forecasts: ValidatedForecasts, observations: ValidatedObservations
+) -> list[Problem]:
     """Warn about regions or quantities that are forecast but never observed."""
     problems: list[Problem] = []
     f, o = forecasts.table, observations.table
@@ -888,7 +1094,13 @@ def cross_check(forecasts: ValidatedForecasts, observations: ValidatedObservatio
         if missing:
             problems.append(
                 Problem(
-                    "warning", "never-observed", obs_file, (), "", col, tuple(missing),
+                    "warning",
+                    "never-observed",
+                    obs_file,
+                    (),
+                    "",
+                    col,
+                    tuple(missing),
                     f"forecasts name this {col} but the observations have none for it; "
                     "its forecasts cannot be scored",
                     f"add its observations, or check the spelling of the {col} in both files",

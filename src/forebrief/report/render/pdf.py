@@ -16,21 +16,20 @@ def _fetcher_class() -> Any:
     try:
         from weasyprint.urls import FatalURLFetchingError, URLFetcher
     except ImportError as exc:  # pragma: no cover - weasyprint is a dependency
-        raise ConfigError("WeasyPrint is needed for the PDF; fix: pip install weasyprint") \
-            from exc
+        raise ConfigError("WeasyPrint is needed for the PDF; fix: pip install weasyprint") from exc
 
     class OfflineFetcher(URLFetcher):
         """Loads only data: URIs and local files; refuses every network address."""
 
         def __init__(self) -> None:
-            super().__init__(timeout=5, allowed_protocols={"data", "file"},
-                             fail_on_errors=False)
+            super().__init__(timeout=5, allowed_protocols={"data", "file"}, fail_on_errors=False)
 
         def fetch(self, url: str, headers: Any = None) -> Any:
             scheme = url.split(":", 1)[0].lower()
             if scheme not in ("data", "file"):
-                raise FatalURLFetchingError(f"refused to fetch {url!r}: the briefing is "
-                                            "rendered offline")
+                raise FatalURLFetchingError(
+                    f"refused to fetch {url!r}: the briefing is rendered offline"
+                )
             return super().fetch(url, headers)
 
     return OfflineFetcher
@@ -40,10 +39,14 @@ def OfflineFetcher() -> Any:
     return _fetcher_class()()
 
 
-def render_pdf(html: str, *, pdf_variant: str | None = None,
-               attachments: Mapping[str, bytes] | None = None,
-               identifier: bytes | None = None,
-               created: dt.datetime | None = None) -> bytes:
+def render_pdf(
+    html: str,
+    *,
+    pdf_variant: str | None = None,
+    attachments: Mapping[str, bytes] | None = None,
+    identifier: bytes | None = None,
+    created: dt.datetime | None = None,
+) -> bytes:
     """Render print HTML to PDF bytes, deterministic for the same input.
 
     ``pdf_variant="pdf/a-3b"`` gives the archival PDF/A-3b; ``attachments`` (name -> bytes) are
@@ -52,17 +55,21 @@ def render_pdf(html: str, *, pdf_variant: str | None = None,
     try:
         from weasyprint import HTML, Attachment
     except ImportError as exc:  # pragma: no cover
-        raise ConfigError("WeasyPrint is needed for the PDF; fix: pip install weasyprint") \
-            from exc
+        raise ConfigError("WeasyPrint is needed for the PDF; fix: pip install weasyprint") from exc
     doc = HTML(string=html, base_url=None, url_fetcher=OfflineFetcher())  # nothing fetched yet
     kwargs: dict[str, Any] = {}
     if pdf_variant:
         kwargs["pdf_variant"] = pdf_variant
     if attachments:
         kwargs["attachments"] = [
-            Attachment(file_obj=io.BytesIO(data), name=name, relationship="Data",
-                       description=f"{name}, as archived in the record",
-                       created=created, modified=created)
+            Attachment(
+                file_obj=io.BytesIO(data),
+                name=name,
+                relationship="Data",
+                description=f"{name}, as archived in the record",
+                created=created,
+                modified=created,
+            )
             for name, data in attachments.items()
         ]
     if identifier:
