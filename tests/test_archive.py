@@ -43,9 +43,9 @@ from typing import Any
 import pytest
 
 import forebrief
+from forebrief import record as arc
 from forebrief.cli import main
 from forebrief.errors import ArchiveError
-from forebrief.record import archive as arc
 
 pytestmark = pytest.mark.slow
 
@@ -925,7 +925,7 @@ def test_a_leftover_folder_with_the_record_name_is_refused(
 def lock_held_by_another_process(archive: Path) -> Iterator[subprocess.Popen[str]]:
     """A second process holding the archive lock until its stdin is closed."""
     code = (
-        "import sys; from pathlib import Path; from forebrief.record.archive import archive_lock\n"
+        "import sys; from pathlib import Path; from forebrief.record import archive_lock\n"
         f"with archive_lock(Path({str(archive)!r})):\n"
         "    print('held', flush=True); sys.stdin.read()\n"
     )

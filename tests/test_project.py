@@ -30,7 +30,7 @@ def test_version_matches_the_package_metadata() -> None:
         "forebrief.core.distributions",
         "forebrief.tables.ensemble",
         "forebrief.report.facts",
-        "forebrief.record.archive",
+        "forebrief.record",
         "forebrief.report.render",
     ],
 )

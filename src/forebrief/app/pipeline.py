@@ -22,7 +22,7 @@ from forebrief.app.weekly import STAGES, BriefingRun, latest_issue_date, run_bri
 from forebrief.app.workflow import load_inputs
 from forebrief.errors import ArchiveError
 from forebrief.io.outputs import csv_bytes, json_bytes
-from forebrief.record.archive import (
+from forebrief.record import (
     MANIFEST,
     ArchiveRecord,
     InputFile,

@@ -855,7 +855,7 @@ def _cmd_demo(args: argparse.Namespace, con: _Console) -> int:
             f"{out}: cannot create the demo folder ({exc.strerror}); fix: choose another --out"
         ) from None
     from forebrief.errors import ArchiveError
-    from forebrief.record.archive import list_records
+    from forebrief.record import list_records
 
     done = list_records(out / "archive")
     if done:
@@ -936,7 +936,7 @@ def _add_weekly_commands(sub: Any) -> None:
 
 
 def _cmd_archive(args: argparse.Namespace, con: _Console) -> int:
-    from forebrief.record import archive as arc
+    from forebrief import record as arc
 
     root: Path = args.archive
     if not root.is_dir():
@@ -1045,7 +1045,7 @@ def _cmd_archive(args: argparse.Namespace, con: _Console) -> int:
 def _cmd_decide(args: argparse.Namespace, con: _Console) -> int:
     import datetime as dt
 
-    from forebrief.record import archive as arc
+    from forebrief import record as arc
 
     for name, value in (("--text", args.text), ("--by", args.by)):
         if not value or not value.strip():
@@ -1075,10 +1075,10 @@ def _cmd_send(args: argparse.Namespace, con: _Console) -> int:
     import email.policy
     import email.utils
 
+    from forebrief import record as arc
     from forebrief.app.config import config_from_dict
     from forebrief.app.delivery import password_from_env_or_prompt, recipients_of, send_message
     from forebrief.errors import DeliveryError
-    from forebrief.record import archive as arc
 
     record_dir: Path = args.record.resolve()
     eml = record_dir / "briefing.eml"

@@ -51,8 +51,12 @@ from forebrief.errors import ArchiveError
 from forebrief.io.outputs import json_bytes, json_ready
 
 __all__ = [
+    "DECISIONS",
     "INDEX",
+    "LOCK",
+    "LOGS",
     "MANIFEST",
+    "SENDS",
     "SUMS",
     "ArchiveRecord",
     "InputFile",
