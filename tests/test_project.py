@@ -77,7 +77,7 @@ def test_the_wheel_ships_the_templates(tmp_path: Path) -> None:
     names = set(zipfile.ZipFile(wheel).namelist())
     for template in ("briefing.html.j2", "briefing.css", "print.css", "email.html.j2", "email.css"):
         assert f"forebrief/templates/{template}" in names
-    assert "forebrief/cli.py" in names
+    assert "forebrief/cli/__init__.py" in names
 
 
 def test_templates_are_found_from_the_installed_package() -> None:

@@ -66,6 +66,7 @@ __all__ = [
     "canonical_json",
     "file_digest",
     "find_record",
+    "index_rows",
     "latest_record_before",
     "list_records",
     "read_facts",
